@@ -54,6 +54,10 @@ class ConfigError(NeurodromeError):
     """A configuration (evolver, experiment) that does not validate."""
 
 
+class RunFileError(NeurodromeError):
+    """A run directory (run.json, log.jsonl) that cannot be read or does not validate."""
+
+
 class MissingExtraError(ImportError):
     """An optional dependency is missing; the message names the pip extra to install."""
 
