@@ -37,6 +37,12 @@ class Layout:
 
     channels: tuple[str, ...]
     ray_angles_deg: tuple[float, ...]
+    #: the body, for controllers that use odometry (dead reckoning from their own commands)
+    wheel_base: float = 0.18
+    max_wheel_speed: float = 0.5
+    control_period_s: float = 0.1
+    body_radius: float = 0.1
+    max_range: float = 1.0
 
     @property
     def size(self) -> int:
@@ -53,7 +59,16 @@ class Layout:
 
     @classmethod
     def of(cls, world) -> Layout:
-        return cls(tuple(world.observation_channels()), tuple(world.robot.range_finders.angles_deg))
+        robot = world.robot
+        return cls(
+            tuple(world.observation_channels()),
+            tuple(robot.range_finders.angles_deg),
+            wheel_base=robot.wheel_base,
+            max_wheel_speed=robot.max_wheel_speed,
+            control_period_s=world.physics.control_period_s,
+            body_radius=robot.radius,
+            max_range=robot.range_finders.max_range,
+        )
 
 
 @runtime_checkable
