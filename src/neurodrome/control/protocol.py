@@ -12,8 +12,8 @@ A *controller* drives a batch of ``n_agents`` robots (often just one) with three
 
 Controllers are built by a *factory* called with the :class:`Layout` of the world, so a
 controller can find its channels by name. Controllers of one class may offer
-``combine(controllers)`` to fuse into one batch; the result must give each agent exactly
-what it would get alone.
+``combine(controllers)`` to fuse into one batch (controllers whose ``batch_key()`` differ
+are not fused); the result must give each agent exactly what it would get alone.
 """
 
 from __future__ import annotations
@@ -116,9 +116,16 @@ class PerAgentAdapter:
 
 
 def combine_runs(controllers: Sequence[Controller]) -> list[Controller]:
-    """Fuse consecutive controllers of one class that offer ``combine``; order is kept."""
+    """Fuse consecutive controllers that offer ``combine`` and share a class and a
+    ``batch_key()`` (if they define one); order is kept."""
     out: list[Controller] = []
     run: list[Controller] = []
+
+    def key(c: Controller):
+        if not hasattr(type(c), "combine"):
+            return None
+        own = getattr(c, "batch_key", None)
+        return (type(c), own() if callable(own) else None)
 
     def flush() -> None:
         if len(run) > 1:
@@ -128,7 +135,7 @@ def combine_runs(controllers: Sequence[Controller]) -> list[Controller]:
         run.clear()
 
     for c in controllers:
-        if run and (type(c) is not type(run[0]) or not hasattr(type(c), "combine")):
+        if run and (key(c) is None or key(c) != key(run[0])):
             flush()
         run.append(c)
     flush()

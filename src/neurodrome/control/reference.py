@@ -73,11 +73,13 @@ class Courier:
         self._step_m = layout.max_wheel_speed * layout.control_period_s
         self.reset_lifetime(np.zeros(n_agents, dtype=np.uint64))
 
+    def batch_key(self) -> tuple:
+        return (self.policy, tuple(self.turn_angles.tolist()), self.cruise, self.approach_m, self.gain, self.layout)
+
     @classmethod
     def combine(cls, couriers: Sequence[Courier]) -> Courier:
         first = couriers[0]
-        same = all(c.policy == first.policy and np.array_equal(c.turn_angles, first.turn_angles) for c in couriers)
-        if not same:
+        if any(c.batch_key() != first.batch_key() for c in couriers):
             raise ValueError("only couriers of one policy and one set of turns combine")
         out = cls.__new__(cls)
         out.__dict__.update({k: v for k, v in first.__dict__.items()})
