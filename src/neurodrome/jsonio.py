@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 import os
+import re
 import tempfile
 from pathlib import Path
 from typing import Any, TypeVar
@@ -34,6 +35,19 @@ def _no_duplicates(pairs: list[tuple[str, Any]]) -> dict:
     return out
 
 
+#: A JSON string (skipped) or one of the non-standard constants Python's parser accepts.
+_CONSTANT = re.compile(r'"(?:\\.|[^"\\])*"|(-?Infinity|NaN)')
+
+
+def _constant_position(text: str) -> tuple[int, int]:
+    """Line and column (from 1) of the first NaN/Infinity outside a string, or (0, 0)."""
+    for m in _CONSTANT.finditer(text):
+        if m.group(1):
+            line = text.count("\n", 0, m.start(1)) + 1
+            return line, m.start(1) - (text.rfind("\n", 0, m.start(1)) + 1) + 1
+    return 0, 0
+
+
 def parse_json_text(text: str, source: str, error: type[NeurodromeError]) -> Any:
     """Parse JSON text strictly; raise ``error`` naming ``source``, line and column."""
     try:
@@ -42,8 +56,13 @@ def parse_json_text(text: str, source: str, error: type[NeurodromeError]) -> Any
         raise error(
             Problem(f"{source}:{exc.lineno}:{exc.colno}", "valid JSON", exc.msg), source=source
         ) from None
-    except ValueError as exc:  # from the hooks above; position is not known
-        raise error(Problem(source, "valid JSON", str(exc)), source=source) from None
+    except ValueError as exc:  # from the hooks above, or an integer too long to convert
+        where = source
+        message = str(exc)
+        if "not valid JSON" in message:
+            line, col = _constant_position(text)
+            where = f"{source}:{line}:{col}" if line else source
+        raise error(Problem(where, "valid JSON", message), source=source) from None
     except RecursionError:
         raise error(Problem(source, "valid JSON", "nesting too deep"), source=source) from None
 

@@ -49,7 +49,9 @@ class Geometry:
     def reachable_space(self, robot_radius: float) -> Polygon | MultiPolygon:
         """Where a robot centre of this radius can be: free space eroded by the radius,
         minus the extra walls thickened by it."""
-        eroded = self.free.buffer(-robot_radius, join_style="mitre")
+        # Round joins make this the exact erosion by a disc (up to arc segments): a mitre
+        # would keep sharp points at inside corners that a round robot cannot reach.
+        eroded = self.free.buffer(-robot_radius, join_style="round", quad_segs=16)
         extra = self.walls[self.boundary_walls:]
         if len(extra):
             cut = unary_union([LineString([(w[0], w[1]), (w[2], w[3])]).buffer(robot_radius) for w in extra])

@@ -21,7 +21,7 @@ def world_from_data(data: Any, source: str = "<world>") -> WorldSpec:
             source=source,
         )
     version = data.get("version")
-    if version != WORLD_VERSION:
+    if type(version) is not int or version != WORLD_VERSION:
         raise WorldFileError(
             Problem(
                 f"{source} $.version",

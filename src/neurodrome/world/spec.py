@@ -10,7 +10,17 @@ from __future__ import annotations
 import math
 from typing import Annotated, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    StrictBool,
+    StrictInt,
+    ValidationError,
+    field_validator,
+    model_validator,
+)
+from pydantic_core import InitErrorDetails, PydanticCustomError
 
 WORLD_FORMAT = "neurodrome-world"
 WORLD_VERSION = 1
@@ -22,10 +32,11 @@ BUILTIN_SIGNALS = ("home", "reward", "bias")
 #: A world may span at most this many metres on a side (tiles for batching rely on it).
 MAX_EXTENT = 200.0
 
-Finite = Annotated[float, Field(allow_inf_nan=False)]
-Length = Annotated[float, Field(allow_inf_nan=False, ge=-1e4, le=1e4)]
-Positive = Annotated[float, Field(allow_inf_nan=False, gt=0, le=1e4)]
-NonNegative = Annotated[float, Field(allow_inf_nan=False, ge=0, le=1e4)]
+# Strict: a width of "0.5" or true is a mistake in the file, not something to coerce.
+Finite = Annotated[float, Field(allow_inf_nan=False, strict=True)]
+Length = Annotated[float, Field(allow_inf_nan=False, strict=True, ge=-1e4, le=1e4)]
+Positive = Annotated[float, Field(allow_inf_nan=False, strict=True, gt=0, le=1e4)]
+NonNegative = Annotated[float, Field(allow_inf_nan=False, strict=True, ge=0, le=1e4)]
 Point = tuple[Length, Length]
 Name = Annotated[str, Field(min_length=1, max_length=64, pattern=r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")]
 
@@ -75,7 +86,7 @@ class Home(_Model):
     heading_deg: Finite = Field(0.0, description="start heading, degrees anticlockwise from +x")
     radius: Positive = Field(0.25, description="home zone radius, metres")
     jitter: NonNegative = Field(0.0, description="start position jitter (uniform disc radius), metres")
-    heading_jitter_deg: Annotated[float, Field(ge=0, le=180, allow_inf_nan=False)] = 0.0
+    heading_jitter_deg: Annotated[float, Field(ge=0, le=180, allow_inf_nan=False, strict=True)] = 0.0
 
 
 class Site(_Model):
@@ -108,13 +119,13 @@ class Marker(_Model):
 
 
 class RangeFinders(_Model):
-    angles_deg: list[Annotated[float, Field(ge=-180, le=180, allow_inf_nan=False)]] = Field(
+    angles_deg: list[Annotated[float, Field(ge=-180, le=180, allow_inf_nan=False, strict=True)]] = Field(
         default_factory=lambda: [-90.0, -45.0, -20.0, 0.0, 20.0, 45.0, 90.0, 180.0],
         max_length=64,
         description="ray directions relative to the heading, degrees (positive = left)",
     )
     max_range: Positive = Field(1.0, description="metres, measured from the body surface")
-    noise: Annotated[float, Field(ge=0, le=1, allow_inf_nan=False)] = Field(
+    noise: Annotated[float, Field(ge=0, le=1, allow_inf_nan=False, strict=True)] = Field(
         0.0, description="standard deviation of multiplicative Gaussian noise on each reading"
     )
 
@@ -124,7 +135,7 @@ class Robot(_Model):
     wheel_base: Positive = Field(0.18, description="distance between the wheels, metres")
     max_wheel_speed: Positive = Field(0.5, description="metres per second")
     mass: Positive = Field(1.0, description="kilograms")
-    motor_noise: Annotated[float, Field(ge=0, le=1, allow_inf_nan=False)] = Field(
+    motor_noise: Annotated[float, Field(ge=0, le=1, allow_inf_nan=False, strict=True)] = Field(
         0.0, description="standard deviation of multiplicative Gaussian noise on wheel commands"
     )
     range_finders: RangeFinders = Field(default_factory=RangeFinders)
@@ -155,8 +166,8 @@ class Relocation(_Model):
     action: Literal["swap", "set"]
     sites: list[Name] = Field(default_factory=list)
     values: dict[Name, Finite] = Field(default_factory=dict)
-    after_trial: Annotated[int, Field(ge=1)] | None = None
-    window: tuple[Annotated[int, Field(ge=1)], Annotated[int, Field(ge=1)]] | None = None
+    after_trial: Annotated[int, Field(ge=1, strict=True)] | None = None
+    window: tuple[Annotated[int, Field(ge=1, strict=True)], Annotated[int, Field(ge=1, strict=True)]] | None = None
 
     @model_validator(mode="after")
     def _consistent(self) -> Relocation:
@@ -181,29 +192,50 @@ class Relocation(_Model):
     def named_sites(self) -> list[str]:
         return list(self.sites) if self.action == "swap" else list(self.values)
 
+    def apply(self, values: dict[str, float]) -> dict[str, float]:
+        """Site values after this event. A swap passes each named site's value on to the
+        next site in the list (the last one's to the first); a set assigns ``values``."""
+        out = dict(values)
+        if self.action == "swap":
+            for k, name in enumerate(self.sites):
+                out[self.sites[(k + 1) % len(self.sites)]] = values[name]
+        else:
+            out.update(self.values)
+        return out
+
+    @property
+    def earliest_trial(self) -> int:
+        """The first trial after which this event may happen."""
+        return self.after_trial if self.after_trial is not None else self.window[0]
+
+    @property
+    def latest_trial(self) -> int:
+        """The last trial after which this event may happen."""
+        return self.after_trial if self.after_trial is not None else self.window[1]
+
 
 class Scoring(_Model):
     crash_penalty: Finite = Field(-0.4, description="added to fitness on a wall contact")
-    crash_ends_trial: bool = True
+    crash_ends_trial: StrictBool = True
     timeout_penalty: Finite = Field(-0.3, description="added when a trial runs out of time unfinished")
-    return_home: bool = Field(True, description="a trial ends at home after visiting a site")
+    return_home: StrictBool = Field(True, description="a trial ends at home after visiting a site")
     home_bonus: Finite = Field(0.0, description="added when the robot gets back home")
 
 
 class Task(_Model):
-    trials: Annotated[int, Field(ge=1, le=100_000)] = 100
+    trials: Annotated[int, Field(ge=1, le=100_000, strict=True)] = 100
     time_limit_s: Positive = Field(30.0, description="per trial, seconds")
     site_values: dict[Name, Finite] = Field(description="value of each site at the first trial")
     relocations: list[Relocation] = Field(default_factory=list)
     scoring: Scoring = Field(default_factory=Scoring)
-    reward_signal_steps: Annotated[int, Field(ge=1, le=10_000)] = Field(
+    reward_signal_steps: Annotated[int, Field(ge=1, le=10_000, strict=True)] = Field(
         5, description="control steps the reward signal holds the value collected"
     )
 
 
 class Physics(_Model):
-    time_step_s: Annotated[float, Field(gt=0, le=0.1, allow_inf_nan=False)] = 0.02
-    control_period_s: Annotated[float, Field(gt=0, le=1.0, allow_inf_nan=False)] = 0.1
+    time_step_s: Annotated[float, Field(gt=0, le=0.1, allow_inf_nan=False, strict=True)] = 0.02
+    control_period_s: Annotated[float, Field(gt=0, le=1.0, allow_inf_nan=False, strict=True)] = 0.1
 
     @model_validator(mode="after")
     def _whole_substeps(self) -> Physics:
@@ -225,7 +257,7 @@ class WorldSpec(_Model):
 
     schema_ref: str | None = Field(None, alias="$schema", description="editor schema hint")
     format: Literal["neurodrome-world"]
-    version: int
+    version: StrictInt
     name: Name
     description: str = Field("", max_length=4000)
     corridors: list[Corridor] = Field(min_length=1)
@@ -249,29 +281,43 @@ class WorldSpec(_Model):
 
     @model_validator(mode="after")
     def _names(self) -> WorldSpec:
+        # Cross-references are reported at the exact JSON path of the offending entry.
+        bad: list[tuple[tuple, str, object]] = []
         site_names = [s.name for s in self.sites]
-        _unique(site_names, "site")
+        known = ", ".join(dict.fromkeys(site_names))
+        for k, n in enumerate(site_names):
+            if n in site_names[:k]:
+                bad.append((("sites", k, "name"), "a site name not used before", n))
         marker_names = [m.name for m in self.markers]
-        _unique(marker_names, "marker")
-        for m in marker_names:
-            if m in BUILTIN_SIGNALS:
-                raise ValueError(f"marker name '{m}' is reserved for a built-in signal")
-        for s in self.robot.signals:
-            if s not in BUILTIN_SIGNALS and s not in marker_names:
-                raise ValueError(
-                    f"robot signal '{s}' is neither a built-in signal ({', '.join(BUILTIN_SIGNALS)}) "
-                    f"nor a marker name ({', '.join(marker_names) or 'none defined'})"
-                )
-        missing = [s for s in site_names if s not in self.task.site_values]
-        unknown = [s for s in self.task.site_values if s not in site_names]
-        if unknown:
-            raise ValueError(f"task.site_values names unknown site(s) {unknown}; sites are {site_names}")
+        for k, n in enumerate(marker_names):
+            if n in marker_names[:k]:
+                bad.append((("markers", k, "name"), "a marker name not used before", n))
+            elif n in BUILTIN_SIGNALS:
+                bad.append((("markers", k, "name"),
+                            f"a name other than the built-in signals ({', '.join(BUILTIN_SIGNALS)})", n))
+        for k, sig in enumerate(self.robot.signals):
+            if sig not in BUILTIN_SIGNALS and sig not in marker_names:
+                bad.append((("robot", "signals", k),
+                            f"a built-in signal ({', '.join(BUILTIN_SIGNALS)}) or a marker name "
+                            f"({', '.join(marker_names) or 'none defined'})", sig))
+        for n in self.task.site_values:
+            if n not in site_names:
+                bad.append((("task", "site_values", n), f"a site name ({known})", n))
+        missing = [n for n in site_names if n not in self.task.site_values]
         if missing:
-            raise ValueError(f"task.site_values has no value for site(s) {missing}")
+            bad.append((("task", "site_values"), f"a value for every site (missing: {', '.join(missing)})",
+                        list(self.task.site_values)))
         for k, event in enumerate(self.task.relocations):
-            for s in event.named_sites():
-                if s not in site_names:
-                    raise ValueError(f"task.relocations[{k}] names unknown site '{s}'; sites are {site_names}")
+            field, names = ("sites", list(event.sites)) if event.action == "swap" else ("values", list(event.values))
+            for j, n in enumerate(names):
+                if n not in site_names:
+                    loc = ("task", "relocations", k, field, j if field == "sites" else n)
+                    bad.append((loc, f"a site name ({known})", n))
+        if bad:
+            raise ValidationError.from_exception_data("WorldSpec", [
+                InitErrorDetails(type=PydanticCustomError("reference", expected), loc=loc, input=found)
+                for loc, expected, found in bad
+            ])
         return self
 
     # -- derived facts used across the package -------------------------------------
@@ -286,14 +332,6 @@ class WorldSpec(_Model):
         pts += [p for o in self.obstacles for p in o.polygon]
         pts += [self.home.position] + [s.position for s in self.sites]
         return pts
-
-
-def _unique(names: list[str], what: str) -> None:
-    seen = set()
-    for n in names:
-        if n in seen:
-            raise ValueError(f"{what} name '{n}' is used twice")
-        seen.add(n)
 
 
 def world_json_schema() -> dict:

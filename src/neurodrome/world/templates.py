@@ -12,7 +12,7 @@ from typing import Any
 
 from .spec import SCHEMA_FILE, WORLD_FORMAT, WORLD_VERSION
 
-KINDS = ("junction", "double-junction", "arms")
+KINDS = ("junction", "double-junction", "arms", "loading-bay")
 
 
 def _relocations(names: list[str], relocate: str, trials: int, count: int = 1) -> list[dict[str, Any]]:
@@ -194,8 +194,69 @@ def arms(
     return data
 
 
+def loading_bay(
+    *,
+    width: float = 0.5,
+    stem: float = 0.8,
+    arm: float = 1.2,
+    bend: float = 1.6,
+    trials: int = 150,
+    relocate: str = "window",
+    relocations: int = 2,
+    high: float = 1.0,
+    low: float = 0.2,
+    name: str = "clinic-loading-bay",
+) -> dict[str, Any]:
+    """A curved ramp and three arms: the dispatch bay faces east into a quarter-circle
+    corridor of radius ``bend`` (drawn as 16 straight pieces) that turns north into a
+    short stem; from the hub one arm leaves north-west, one north and one east-north-east
+    with a dog-leg turn up to its store room."""
+    data = _base(
+        name,
+        "Courier rover: from the dispatch bay round the curved loading ramp to a hub with three "
+        "store rooms (pharmacy, linen, supplies); the restock moves the stock between them.",
+        width,
+        trials,
+        time_limit=round(4 * (bend * math.pi / 2 + stem + 1.5 * arm) / 0.5 + 10, 1),
+    )
+    centre = (0.0, bend)
+    ramp = [
+        [round(centre[0] + bend * math.cos(math.radians(a)), 6), round(centre[1] + bend * math.sin(math.radians(a)), 6)]
+        for a in [-90 + 90 * k / 16 for k in range(17)]
+    ]
+    hub = (bend, bend + stem)
+    ramp.append([hub[0], hub[1]])
+
+    def point(origin: tuple[float, float], heading: float, length: float) -> list[float]:
+        return [round(origin[0] + length * math.cos(math.radians(heading)), 6),
+                round(origin[1] + length * math.sin(math.radians(heading)), 6)]
+
+    pharmacy = point(hub, 150.0, arm)
+    linen = point(hub, 90.0, arm)
+    elbow = point(hub, 15.0, 0.8 * arm)
+    supplies = point((elbow[0], elbow[1]), 75.0, 0.7 * arm)
+    data["corridors"] = [
+        {"name": "ramp", "path": ramp, "width": width},
+        {"name": "pharmacy-arm", "path": [list(hub), pharmacy], "width": width},
+        {"name": "linen-arm", "path": [list(hub), linen], "width": width},
+        {"name": "supplies-arm", "path": [list(hub), elbow, supplies], "width": width},
+    ]
+    site_r = round(width * 0.45, 4)
+    names = ["pharmacy-store", "linen-store", "supplies-store"]
+    data["home"] = {"position": [0.0, 0.0], "heading_deg": 0.0, "radius": site_r}
+    data["sites"] = [{"name": n, "position": p, "radius": site_r} for n, p in zip(names, [pharmacy, linen, supplies])]
+    data["markers"] = [{"name": "junction", "position": list(hub), "radius": round(width * 0.7, 4)}]
+    data["task"]["site_values"] = {"pharmacy-store": high, "linen-store": low, "supplies-store": low}
+    events = _relocations(names[:2], relocate, trials, relocations)
+    order = ["pharmacy-store", "supplies-store", "linen-store"]
+    for k, event in enumerate(events):
+        event["sites"] = [order[k % 3], order[(k + 1) % 3]]
+    data["task"]["relocations"] = events
+    return data
+
+
 def make(kind: str, **options: Any) -> dict[str, Any]:
-    builders = {"junction": junction, "double-junction": double_junction, "arms": arms}
+    builders = {"junction": junction, "double-junction": double_junction, "arms": arms, "loading-bay": loading_bay}
     if kind not in builders:
         raise ValueError(f"unknown template '{kind}'; choose one of {', '.join(KINDS)}")
     return builders[kind](**{k: v for k, v in options.items() if v is not None})
