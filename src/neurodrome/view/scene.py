@@ -286,26 +286,32 @@ def _draw_bands(canvas: Canvas, viewport: Viewport, spec: WorldSpec, title: str 
     if not legend:
         return
     items: list[tuple[str, Color, Color]] = [
+        ("range rays", pal.ray, pal.ray_hit),
         ("robot", pal.robot, pal.robot_outline),
         ("home", pal.home_fill, pal.home),
         ("store (value)", pal.site_fill, pal.site),
         ("zone signal", pal.marker_fill, pal.marker),
     ]
+    size = round(14 * ui)
+    r, key_w, gap = 7 * ui, 22 * ui, 22 * ui
+    widths = [canvas.text_size(text, size)[0] + 8 * ui + (key_w if k == 0 else 2 * r) for k, (text, _, _) in
+              enumerate(items)]
+    scale_end = x0 + length + 10 * ui + canvas.text_size(f"{metres:g} m", round(15 * ui))[0]
+    while items and cw - pad - sum(widths) - gap * (len(items) - 1) < scale_end + gap:
+        items, widths = items[1:], widths[1:]  # too narrow a picture: drop keys from the left
     x = cw - pad
-    r = 7 * ui
-    for text, fill, edge in reversed(items):
-        tw, _ = canvas.text_size(text, round(14 * ui))
-        canvas.text((x, y), text, pal.text_on_ground, size=round(14 * ui), anchor="right")
-        x -= tw + 8 * ui + r
-        canvas.circle((x, y), r, fill=(*pal.floor[:3],) if len(fill) == 4 else None)
-        canvas.circle((x, y), r, fill=fill, outline=edge, width=2 * ui)
-        x -= r + 22 * ui
-    ray_w = 22 * ui
-    canvas.text((x, y), "range rays", pal.text_on_ground, size=round(14 * ui), anchor="right")
-    tw, _ = canvas.text_size("range rays", round(14 * ui))
-    x -= tw + 8 * ui
-    canvas.polyline([(x - ray_w, y), (x, y)], pal.ray, width=2 * ui)
-    canvas.circle((x, y), 3 * ui, fill=pal.ray_hit)
+    for k, (text, fill, edge) in reversed(list(enumerate(items))):
+        canvas.text((x, y), text, pal.text_on_ground, size=size, anchor="right")
+        x -= canvas.text_size(text, size)[0] + 8 * ui
+        if text == "range rays":
+            canvas.polyline([(x - key_w, y), (x, y)], fill, width=2 * ui)
+            canvas.circle((x, y), 3 * ui, fill=edge)
+            x -= key_w
+        else:
+            canvas.circle((x - r, y), r, fill=pal.floor)  # translucent fills show as on the floor
+            canvas.circle((x - r, y), r, fill=fill, outline=edge, width=2 * ui)
+            x -= 2 * r
+        x -= gap
 
 
 def render_png(spec: WorldSpec, geometry: Geometry, path: str | Path, size: tuple[int, int] = (1200, 900),
