@@ -28,7 +28,7 @@ EXPECTED: dict[str, dict] = {
     "trailing-comma.json": {"code": "syntax", "line": True},
     "nan-width.json": {"code": "syntax", "line": True, "found": "NaN"},
     "infinity-coordinate.json": {"code": "syntax", "line": True, "found": "Infinity"},
-    "duplicate-key.json": {"expected": "valid JSON", "found": "'name'"},
+    "duplicate-key.json": {"code": "syntax", "line": True, "found": "'name'"},
     "overflow-number.json": {"path": "$.corridors[0].width", "found": "Infinity"},
     "huge-integer.json": {"expected": "valid JSON", "found": "digits"},
     "deep-nesting.json": {"expected": "valid JSON", "found": "nesting"},
@@ -141,3 +141,14 @@ def test_missing_file_and_directory(tmp_path, capsys):
     out, err = capsys.readouterr()
     assert "Traceback" not in out + err
     assert "no such file" in out and "a directory" in out
+
+
+def test_duplicate_key_and_nan_point_at_their_line(capsys):
+    """Duplicate keys and NaN are located at the offending line (found by a plain text search)."""
+    for name, needle, nth in [("duplicate-key.json", '"name"', 2), ("nan-width.json", "NaN", 1)]:
+        path = CORPUS / name
+        lines = path.read_text().splitlines()
+        want = [k + 1 for k, line in enumerate(lines) if needle in line][nth - 1]
+        main(["check", "--json", str(path)])
+        err = json.loads(capsys.readouterr().out)["files"][0]["errors"][0]
+        assert err["line"] == want

@@ -48,6 +48,37 @@ def _constant_position(text: str) -> tuple[int, int]:
     return 0, 0
 
 
+_TOKEN = re.compile(r'"(?:\\.|[^"\\])*"|[{}\[\]:]')
+
+
+def _duplicate_position(text: str) -> tuple[int, int]:
+    """Line and column (from 1) of the first key repeated within one object, or (0, 0).
+
+    Called only after the parser has accepted the text's syntax, so a light scan of
+    strings and brackets is enough.
+    """
+    stack: list[set[str] | None] = []
+    last_string: tuple[str, int] | None = None
+    for m in _TOKEN.finditer(text):
+        tok = m.group(0)
+        if tok == "{":
+            stack.append(set())
+        elif tok == "[":
+            stack.append(None)
+        elif tok in "}]":
+            if stack:
+                stack.pop()
+        elif tok == ":":
+            if last_string is not None and stack and stack[-1] is not None:
+                key, pos = last_string
+                if key in stack[-1]:
+                    line = text.count("\n", 0, pos) + 1
+                    return line, pos - (text.rfind("\n", 0, pos) + 1) + 1
+                stack[-1].add(key)
+        last_string = (tok, m.start()) if tok.startswith('"') else None
+    return 0, 0
+
+
 def parse_json_text(text: str, source: str, error: type[NeurodromeError]) -> Any:
     """Parse JSON text strictly; raise ``error`` naming ``source``, line and column."""
     try:
@@ -59,9 +90,12 @@ def parse_json_text(text: str, source: str, error: type[NeurodromeError]) -> Any
     except ValueError as exc:  # from the hooks above, or an integer too long to convert
         where = source
         message = str(exc)
+        line = col = 0
         if "not valid JSON" in message:
             line, col = _constant_position(text)
-            where = f"{source}:{line}:{col}" if line else source
+        elif "appears twice" in message:
+            line, col = _duplicate_position(text)
+        where = f"{source}:{line}:{col}" if line else source
         raise error(Problem(where, "valid JSON", message), source=source) from None
     except RecursionError:
         raise error(Problem(source, "valid JSON", "nesting too deep"), source=source) from None
