@@ -2,6 +2,7 @@
 
 from ._version import __version__
 from .errors import ConfigError, ControllerFileError, NeurodromeError, WorldFileError
+from .evaluate import evaluate
 from .world import WorldSpec, build_geometry, load_world
 
 __all__ = [
@@ -12,5 +13,6 @@ __all__ = [
     "WorldSpec",
     "__version__",
     "build_geometry",
+    "evaluate",
     "load_world",
 ]

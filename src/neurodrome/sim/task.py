@@ -59,7 +59,7 @@ class AgentResult:
     """One controller's evaluation: fitness, per-trial records, relocations, faults."""
 
     agent: int
-    fitness: float
+    fitness: float | None  #: None when the controller could not be built (see fault)
     trials: list[TrialRecord] = field(default_factory=list)
     relocations: list[RelocationRecord] = field(default_factory=list)
     steps: int = 0  #: robot control steps simulated
@@ -72,12 +72,20 @@ class AgentResult:
         return [t.outcome for t in self.trials]
 
     def to_dict(self) -> dict:
-        out = asdict(self)
-        out["behaviour"] = {
-            "outcomes": self.outcomes,
-            "end_positions": [list(t.end_position) for t in self.trials],
+        """Plain JSON data: controller, fitness, steps, fault, trials, relocations, behaviour."""
+        return {
+            "controller": self.controller,
+            "agent": self.agent,
+            "fitness": self.fitness,
+            "steps": self.steps,
+            "fault": self.fault,
+            "trials": [asdict(t) for t in self.trials],
+            "relocations": [asdict(r) for r in self.relocations],
+            "behaviour": {
+                "outcomes": self.outcomes,
+                "end_positions": [list(t.end_position) for t in self.trials],
+            },
         }
-        return out
 
 
 def draw_schedule(spec: WorldSpec, rng: np.random.Generator) -> list[tuple[int, int]]:
