@@ -204,3 +204,12 @@ def test_rays_in_a_corridor_match_shapely():
         hit = ray.intersection(g.free.boundary)
         want = min(shapely.get_parts(hit), key=lambda p: shapely.distance(p, shapely.Point(start)))
         assert math.dist(end, (want.x, want.y)) < 1e-9
+
+
+def test_obstacle_warnings():
+    """An obstacle with no area, or away from every corridor, warns that it cuts nothing."""
+    spec = make_world([([(0, 0), (2, 0)], 0.5)], sites=[("a", (2, 0))],
+                      obstacles=[{"polygon": [[0, 0], [1, 0], [2, 0]]},
+                                 {"polygon": [[5, 5], [6, 5], [6, 6]]}])
+    found = [(f.code, f.where) for f in lint(spec, build_geometry(spec)) if f.level == "warning"]
+    assert ("obstacle-empty", "$.obstacles[0].polygon") in found and ("obstacle-outside", "$.obstacles[1]") in found

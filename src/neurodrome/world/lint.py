@@ -20,9 +20,10 @@ from typing import Any
 import numpy as np
 from shapely.geometry import MultiPolygon, Point, Polygon
 from shapely.geometry.base import BaseGeometry
+from shapely.ops import unary_union
 
 from ..errors import Finding
-from .geometry import Geometry
+from .geometry import Geometry, corridor_polygon
 from .spec import MAX_EXTENT, Task, WorldSpec
 
 #: Metres of clearance the robot needs on each side beyond its own radius: contact
@@ -116,6 +117,7 @@ def lint(spec: WorldSpec, geometry: Geometry) -> list[Finding]:
     findings += _overlaps(spec)
     findings += _schedule(spec)
     findings += _robot(spec, geometry)
+    findings += _obstacles(spec, geometry)
     findings += _markers(spec, geometry)
     return _ordered(findings)
 
@@ -303,12 +305,30 @@ def _robot(spec: WorldSpec, geometry: Geometry) -> list[Finding]:
     return out
 
 
+def _obstacles(spec: WorldSpec, geometry: Geometry) -> list[Finding]:
+    out = []
+    floor = None
+    for k, o in enumerate(spec.obstacles):
+        shape = Polygon(o.polygon).buffer(0)
+        if shape.area <= 0:
+            out.append(_warning(f"$.obstacles[{k}].polygon", "the obstacle has no area (its points are in a line "
+                                "or it folds onto itself) and cuts nothing", "obstacle-empty"))
+            continue
+        if floor is None:
+            floor = unary_union([corridor_polygon(c.path, c.width) for c in spec.corridors])
+        if not shape.intersects(floor):
+            out.append(_warning(f"$.obstacles[{k}]", "the obstacle touches no corridor and cuts nothing",
+                                "obstacle-outside"))
+    return out
+
+
 def _markers(spec: WorldSpec, geometry: Geometry) -> list[Finding]:
     out = []
     for k, m in enumerate(spec.markers):
         shape = Polygon(m.polygon).buffer(0) if m.polygon is not None else Point(m.position).buffer(m.radius)
         if not shape.intersects(geometry.free):
-            out.append(_warning(f"$.markers[{k}]", f"marker '{m.name}' lies outside the free space", "marker-outside"))
+            out.append(_warning(f"$.markers[{k}]", f"marker '{m.name}' lies outside the free space (or has no area)",
+                                "marker-outside"))
         elif m.position is not None and not geometry.contains(*m.position):
             out.append(_warning(
                 f"$.markers[{k}].position", f"marker '{m.name}' is centred outside the free space", "marker-outside",
