@@ -26,7 +26,9 @@ its current weights w.
        M_i   = tanh(m_i / 2) if i has an incoming connection from a modulatory neuron, else 1
 
    (../shared/REFERENCES.md section 2; M_i = 1 is the plain Hebbian case), then is clipped
-   to the connection's bounds. The presynaptic value is o'_j, the value that travelled
+   to the connection's bounds. The executor evaluates the bracket in the algebraically
+   equal form ``(eta A o_i + eta B) o'_j + (eta C o_i + eta D)`` (fewer array passes);
+   the per-neuron reference in the tests uses the form above and agrees to 1e-9. The presynaptic value is o'_j, the value that travelled
    along the connection this step and produced o_i; the postsynaptic value is the new
    o_i. So the rule correlates cause and effect across the connection's own delay. The
    new weights are used from the next step on. Fixed connections never change.
@@ -45,7 +47,8 @@ Bit-identity
 An agent's results are bit-identical whatever batch it runs in and however much padding
 surrounds it. Matrix products (BLAS) and ``numpy.sum`` pick summation orders and kernels
 by array size, so the sums of step 2 are an explicit loop over the source index j in
-fixed order, each iteration one vectorised (N, 2, n) multiply-add. Padded neurons have
+fixed order, each iteration one vectorised add of the (2, T, N) products of source j
+(T = the most hidden + output neurons of any network in the batch). Padded neurons have
 value 0 and padded weights are 0, so padding only adds exact zeros after the real terms.
 Everything else is elementwise.
 """
@@ -130,13 +133,13 @@ def compile_networks(specs: Sequence[NetworkSpec], layout: Layout) -> CompiledNe
                 c.is_bias[b, k] = True
             elif neuron.role == "output":
                 c.outputs[b, WHEELS.index(neuron.wheel)] = k  # type: ignore[arg-type]
-        for conn in spec.connections:
+        for conn, rule in zip(spec.connections, spec.rules()):
             j, i = index[conn.source], index[conn.target]
             c.connected[b, j, i] = True
             (c.w_modulatory if c.modulatory[b, j] else c.w_standard)[b, j, i] = conn.weight
             if conn.plastic:
                 c.plastic[b, j, i] = True
-                c.rule[:, b, j, i] = spec.rule_of(conn)
+                c.rule[:, b, j, i] = rule
                 c.bounds[:, b, j, i] = spec.bounds_of(conn)
     return c
 
@@ -227,6 +230,7 @@ class NetworkController:
             self._p_rule[:, :k, b] = c.rule[:, b, js, is_]
             self._p_lo[:k, b], self._p_hi[:k, b] = c.bounds[0, b, js, is_], c.bounds[1, b, js, is_]
         self._p_w0 = self._buf[self._p_flat]
+        self._p_coef = self._p_rule[0] * self._p_rule[1:]  # eta*A, eta*B, eta*C, eta*D
         self._p_w = self._p_w0.copy()
         self._out_flat = c.outputs.T * N + agents  # (2, N)
         out_act = np.take_along_axis(c.activation, c.outputs, axis=1).T
@@ -234,7 +238,7 @@ class NetworkController:
         self._out_offset = np.where(out_act == LOGISTIC, -1.0, 0.0)
         self._o = np.zeros((n + 1, N))  # neuron values, row n is junk
         self._acc = np.zeros((2, T, N))
-        self._tmp = np.zeros((2, T, N))
+        self._prod = np.zeros((n, 2, T, N))
         self._x = np.zeros((T, N))
         self._t = np.zeros((T, N))
         self._p_pre, self._p_post, self._p_dw, self._p_aux = (np.zeros((P, N)) for _ in range(4))
@@ -266,14 +270,15 @@ class NetworkController:
             return self._step(obs)
 
     def _step(self, obs: np.ndarray) -> np.ndarray:
-        o, acc, tmp, w = self._o, self._acc, self._tmp, self._w
+        o, acc, w = self._o, self._acc, self._w
         o_flat = o.reshape(-1)
         np.take(obs.reshape(-1), self._in_src, out=self._in_buf, mode="clip")
         o_flat[self._in_dst] = self._in_buf
+        # All products in one call, then the sums in fixed source order, one add each.
+        prod = np.multiply(w, o[: self._n, None, None, :], out=self._prod)
         acc.fill(0.0)
         for j in self._sources:
-            np.multiply(w[j], o[j], out=tmp)
-            np.add(acc, tmp, out=acc)
+            np.add(acc, prod[j], out=acc)
         x = np.add(acc[0], self._bias, out=self._x)
         t = np.tanh(np.multiply(x, 0.5, out=self._t), out=self._t)
         if self._mixed:
@@ -282,16 +287,14 @@ class NetworkController:
             pre, post, dw, aux = self._p_pre, self._p_post, self._p_dw, self._p_aux
             np.take(o_flat, self._p_src, out=pre, mode="clip")
             np.take(t.reshape(-1), self._p_tgt, out=post, mode="clip")
-            eta, A, B, C, D = self._p_rule
-            # dw = eta * (A pre post + B pre + C post + D), left to right as written
-            np.multiply(A, pre, out=dw)
-            dw *= post
-            np.multiply(B, pre, out=aux)
-            dw += aux
-            np.multiply(C, post, out=aux)
-            dw += aux
-            dw += D
-            dw *= eta
+            eA, eB, eC, eD = self._p_coef
+            # eta (A pre post + B pre + C post + D) as (eta A post + eta B) pre + (eta C post + eta D)
+            np.multiply(eA, post, out=dw)
+            np.add(dw, eB, out=dw)
+            np.multiply(dw, pre, out=dw)
+            np.multiply(eC, post, out=aux)
+            np.add(aux, eD, out=aux)
+            np.add(dw, aux, out=dw)
             if self._any_mod:
                 mod = np.multiply(acc[1], 0.5, out=self._x)
                 np.tanh(mod, out=mod)

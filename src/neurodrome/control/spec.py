@@ -116,6 +116,20 @@ class NetworkSpec(_Model):
         r = self.rule.merged(conn.rule)
         return (r.learning_rate, r.correlation, r.presynaptic, r.postsynaptic, r.constant)  # type: ignore[return-value]
 
+    def rules(self) -> list[tuple[float, float, float, float, float] | None]:
+        """:meth:`rule_of` for every connection (None for fixed ones), merging once."""
+        base = None
+        out: list[tuple[float, float, float, float, float] | None] = []
+        for conn in self.connections:
+            if not conn.plastic:
+                out.append(None)
+            elif conn.rule is None:
+                base = base or self.rule_of(conn)
+                out.append(base)
+            else:
+                out.append(self.rule_of(conn))
+        return out
+
     def bounds_of(self, conn: Connection) -> tuple[float, float]:
         return tuple(conn.bounds) if conn.bounds is not None else tuple(self.weight_bounds)  # type: ignore[return-value]
 
@@ -171,6 +185,7 @@ def semantic_problems(spec: NetworkSpec, source: str = "") -> list[Problem]:
     if not _check_bounds(spec.weight_bounds, f"{at}.weight_bounds", problems):
         return problems
     seen: dict[tuple[str, str], int] = {}
+    net_missing = spec.rule.missing()
     for k, c in enumerate(spec.connections):
         where = f"{at}.connections[{k}] ({_label(c)})"
         for end, nid in (("source", c.source), ("target", c.target)):
@@ -190,7 +205,7 @@ def semantic_problems(spec: NetworkSpec, source: str = "") -> list[Problem]:
                 problems.append(Problem(where, "no rule or bounds on a fixed connection (set plastic: true)",
                                         "rule" if c.rule is not None else "bounds"))
             continue
-        missing = spec.rule.merged(c.rule).missing()
+        missing = net_missing if c.rule is None else spec.rule.merged(c.rule).missing()
         if missing:
             problems.append(Problem(where, "a complete plasticity rule (in $.rule or the connection's rule)",
                                     f"no {', '.join(missing)}"))
