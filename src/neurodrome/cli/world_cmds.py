@@ -9,6 +9,8 @@ import sys
 from pathlib import Path
 from typing import Any
 
+from shapely.errors import GEOSException
+
 from ..errors import Finding, NeurodromeError, Problem, WorldFileError
 from ..jsonio import dump_json, write_atomic
 from ..world import templates
@@ -139,11 +141,19 @@ def check_file(path: str, strict: bool = False) -> dict[str, Any]:
         report["errors"] = [_problem_dict(p, path) for p in exc.problems]
         report["ok"] = False
         return report
-    geometry = build_geometry(spec)
-    for f in lint(spec, geometry):
+    try:
+        geometry = build_geometry(spec)
+        findings = lint(spec, geometry)
+        summary = summarize(spec, geometry)
+    except GEOSException as exc:  # a shapely failure on freak geometry is still the file's fault
+        report["errors"] = [{"level": "error", "code": "geometry", "where": "$.corridors", "path": "$.corridors",
+                             "message": f"the corridors do not make a usable floor ({exc})"}]
+        report["ok"] = False
+        return report
+    for f in findings:
         level = "error" if (f.level == "error" or strict) else "warning"
         (report["errors"] if level == "error" else report["warnings"]).append(_finding_dict(f, level))
-    report["summary"] = summarize(spec, geometry)
+    report["summary"] = summary
     report["ok"] = not report["errors"]
     return report
 
