@@ -10,6 +10,11 @@ simulation (here, on local worker processes, or on a Dask cluster) and returns o
 :class:`~neurodrome.sim.task.AgentResult` per controller, in input order. Agent k draws
 its randomness from (seed, k) only, so results do not depend on the chunking, the
 executor or the number of workers.
+
+What travels to a worker: one task per chunk, holding the world once (as plain data; on
+Dask it is placed on every worker once per evaluation and chunks refer to it) and the
+chunk's controller sources. Network descriptions are compiled on the worker into one
+batched network per chunk.
 """
 
 from __future__ import annotations
@@ -18,14 +23,20 @@ import math
 from pathlib import Path
 from typing import Any, Callable, Sequence
 
+import numpy as np
+
 from .control.protocol import Layout
 from .control.sources import is_portable, label, resolve
-from .errors import NeurodromeError
-from .executors import LocalPool, default_workers, dask_executor, run_chunks
+from .errors import NeurodromeError, Problem
+from .executors import DaskExecutor, LocalPool, default_workers, is_dask_client, run_chunks
 from .sim.arena import MAX_AGENTS
 from .sim.batch import Batch
 from .sim.task import AgentResult
 from .world import WorldSpec, load_world, world_from_data, world_to_data
+
+#: Smallest chunk when splitting for several workers: a batch's per-step cost is mostly
+#: fixed overhead at small sizes, so tiny chunks buy no speed and add per-task overhead.
+MIN_CHUNK = 8
 
 
 def _as_world(world: WorldSpec | str | Path | dict) -> WorldSpec:
@@ -34,6 +45,41 @@ def _as_world(world: WorldSpec | str | Path | dict) -> WorldSpec:
     if isinstance(world, dict):
         return world_from_data(world)
     return load_world(world)
+
+
+class _Guarded:
+    """Wraps a controller that cannot be fused with others, so that an exception in its
+    resets fails only its own agent: the reason is kept and raised from the next ``act``,
+    where the batch records it as that agent's fault."""
+
+    def __init__(self, inner: Any) -> None:
+        self._inner = inner
+        self.n_agents = inner.n_agents
+        self._failure: str | None = None
+
+    def __getattr__(self, name: str) -> Any:
+        if name.startswith("__") or name == "_inner":
+            raise AttributeError(name)
+        return getattr(self._inner, name)
+
+    def _call(self, hook: str, arg: np.ndarray) -> None:
+        if self._failure is not None:
+            return
+        try:
+            getattr(self._inner, hook)(arg)
+        except Exception as exc:  # user code may raise anything: fail only this agent
+            self._failure = f"{hook}() raised {type(exc).__name__}: {exc}"
+
+    def reset_lifetime(self, seeds: np.ndarray) -> None:
+        self._call("reset_lifetime", seeds)
+
+    def reset_trial(self, mask: np.ndarray) -> None:
+        self._call("reset_trial", mask)
+
+    def act(self, obs: np.ndarray) -> np.ndarray:
+        if self._failure is not None:
+            raise RuntimeError(self._failure)
+        return self._inner.act(obs)
 
 
 def run_batch(
@@ -56,10 +102,11 @@ def run_batch(
             ctrl = resolve(source, layout)
             if ctrl.n_agents != 1:
                 raise ValueError(f"a controller source must drive one agent, this one drives {ctrl.n_agents}")
-        except (NeurodromeError, ValueError, TypeError, ImportError) as exc:
-            results[k] = AgentResult(agent=int(agent_ids[k]), fitness=None, fault=f"bad controller: {exc}", controller=labels[k])
+        except Exception as exc:  # a user's factory may raise anything: fail only its result
+            reason = exc.render() if isinstance(exc, NeurodromeError) else f"{type(exc).__name__}: {exc}"
+            results[k] = AgentResult(agent=int(agent_ids[k]), fitness=None, fault=f"bad controller: {reason}", controller=labels[k])
             continue
-        controllers.append(ctrl)
+        controllers.append(ctrl if hasattr(type(ctrl), "combine") else _Guarded(ctrl))
         ids.append(int(agent_ids[k]))
         names.append(labels[k])
         slots.append(k)
@@ -71,12 +118,25 @@ def run_batch(
 
 
 def plan_chunks(n: int, workers: int, chunk_size: int | None = None) -> list[range]:
-    """Contiguous index ranges: about two chunks per worker, none above MAX_AGENTS."""
+    """Contiguous index ranges: about two chunks per worker (so a slow chunk or a lost
+    worker costs little), none under MIN_CHUNK unless ``chunk_size`` says so, none above
+    MAX_AGENTS."""
     if n == 0:
         return []
-    size = chunk_size or max(1, math.ceil(n / max(1, 2 * workers if workers > 1 else 1)))
+    if chunk_size is not None and chunk_size < 1:
+        raise ValueError(f"chunk_size must be 1 or more, not {chunk_size}")
+    if chunk_size:
+        size = chunk_size
+    elif workers > 1:
+        size = max(MIN_CHUNK, math.ceil(n / (2 * workers)))
+    else:
+        size = n
     size = min(size, MAX_AGENTS)
     return [range(a, min(n, a + size)) for a in range(0, n, size)]
+
+
+class NotPortableError(NeurodromeError):
+    """Python controller objects given to an evaluation that runs in other processes."""
 
 
 def evaluate(
@@ -92,55 +152,84 @@ def evaluate(
     progress: Callable[[int, int], None] | None = None,
 ) -> list[AgentResult]:
     """Evaluate ``controllers`` (controller sources, see :mod:`neurodrome.control.sources`)
-    in ``world``; results come back in input order.
+    in ``world``; results come back in input order, one per controller.
 
     Where it runs: ``workers=1`` (default) in this process; ``workers=K`` on K local
-    worker processes (``None`` or 0: all cores); ``executor`` a
-    :class:`~neurodrome.executors.LocalPool`, any ``concurrent.futures.Executor``, a
-    ``distributed.Client`` or a Dask scheduler address (``"tcp://host:8786"``).
-    ``progress(done, total)`` is called as chunks finish.
+    worker processes started for this call (``None`` or 0: all cores); ``executor`` a
+    :class:`~neurodrome.executors.LocalPool` (keep one for a whole run), any
+    ``concurrent.futures.Executor``, a ``distributed.Client`` or a Dask scheduler
+    address (``"tcp://host:8786"``). ``progress(done, total)`` is called as chunks
+    finish. ``agent_ids`` (default 0..n-1) are the indices that seed each agent.
+
+    A source that cannot be built, or a controller that raises or emits NaN, fails only
+    its own result (``fault`` says why, ``fitness`` is None for a source that could not
+    be built). Python controller objects and factories only run in this process.
     """
     spec = _as_world(world)
+    if trials is not None and (isinstance(trials, bool) or not isinstance(trials, (int, np.integer)) or trials < 1):
+        raise NeurodromeError(Problem("trials", "a whole number of trials >= 1", repr(trials)))
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise NeurodromeError(Problem("seed", "a whole number >= 0", repr(seed)))
     n = len(controllers)
     ids = list(range(n)) if agent_ids is None else [int(a) for a in agent_ids]
     if len(ids) != n:
         raise ValueError(f"agent_ids has {len(ids)} entries for {n} controllers")
     labels = [label(c) for c in controllers]
-    own_pool: LocalPool | None = None
+    if n == 0:
+        return []
     pool: LocalPool | None = None
-    ex = None
-    if executor is None and workers not in (1,):
-        own_pool = pool = LocalPool(workers or default_workers())
+    ex: Any = None
+    owned: Any = None
+    if executor is None and workers != 1:
+        owned = pool = LocalPool(workers or default_workers())
     elif isinstance(executor, LocalPool):
         pool = executor
-    elif isinstance(executor, str) or type(executor).__name__ == "Client":
-        ex = dask_executor(executor)
+    elif isinstance(executor, str) or is_dask_client(executor):
+        owned = ex = DaskExecutor(executor)
     elif executor is not None:
         ex = executor
     remote = pool is not None or ex is not None
-    if remote:
-        bad = [labels[k] for k, c in enumerate(controllers) if not is_portable(c)]
-        if bad:
-            raise ValueError(
-                f"controllers {bad[:3]} are Python objects and cannot be sent to worker processes; "
-                "pass names, files, network descriptions or module:attribute, or use workers=1"
-            )
-    width = pool.workers if pool is not None else (default_workers() if ex is not None else 1)
-    chunks = plan_chunks(n, width, chunk_size if remote else (chunk_size or 1024))
-    world_data = world_to_data(spec) if remote else spec
-    jobs = [(world_data, [controllers[k] for k in r], [ids[k] for k in r], seed, trials, [labels[k] for k in r]) for r in chunks]
-    done = [0]
-
-    def tick(k: int, _result: Any) -> None:
-        done[0] += len(chunks[k])
-        if progress:
-            progress(done[0], n)
-
     try:
+        if remote:
+            bad = [k for k, c in enumerate(controllers) if not is_portable(c)]
+            if bad:
+                raise NotPortableError(
+                    Problem(
+                        f"controllers[{bad[0]}] ({labels[bad[0]]})" + (f" and {len(bad) - 1} more" if len(bad) > 1 else ""),
+                        "controller sources that can be sent to worker processes: bundled names, network files, "
+                        "network descriptions (dicts) or 'module:attribute'; run Python objects with workers=1",
+                        f"a Python {type(controllers[bad[0]]).__name__} object",
+                    )
+                )
+        if pool is not None:
+            width = pool.workers
+        elif ex is not None:
+            width = getattr(ex, "workers", None) or getattr(ex, "_max_workers", None) or default_workers()
+        else:
+            width = 1
+        chunks = plan_chunks(n, width, chunk_size)
+        if remote:
+            world_data: Any = world_to_data(spec)
+            if isinstance(ex, DaskExecutor):
+                world_data = ex.share(world_data)
+        else:
+            world_data = spec
+        jobs = [(world_data, [controllers[k] for k in r], [ids[k] for k in r], seed, trials, [labels[k] for k in r]) for r in chunks]
+        done = [0]
+
+        def tick(k: int, _result: Any) -> None:
+            done[0] += len(chunks[k])
+            if progress:
+                progress(done[0], n)
+
         parts = run_chunks(run_batch, jobs, executor=ex, pool=pool, on_done=tick)
     finally:
-        if own_pool is not None:
-            own_pool.close()
+        if isinstance(ex, DaskExecutor):
+            ex.release()
+        if isinstance(owned, LocalPool):
+            owned.close()
+        elif owned is not None:
+            owned.shutdown()
     return [r for part in parts for r in part]
 
 
@@ -153,7 +242,8 @@ def write_replay(
     seed: int = 0,
     trials: int | None = None,
 ) -> list[AgentResult]:
-    """Re-run the given controllers as agents ``agent_ids`` and write a replay file.
+    """Re-run the given controllers as agents ``agent_ids`` and write a replay file
+    (atomically: a failed run leaves no file).
 
     Because an agent's run depends only on (seed, agent index), the replay shows exactly
     what happened in the evaluation that produced its result.
@@ -162,6 +252,14 @@ def write_replay(
 
     spec = _as_world(world)
     layout = Layout.of(spec)
-    batch = Batch(spec, [resolve(c, layout) for c in controllers], seed=seed, agent_ids=list(agent_ids), trials=trials, labels=[label(c) for c in controllers])
+    built = [resolve(c, layout) for c in controllers]
+    batch = Batch(
+        spec,
+        [c if hasattr(type(c), "combine") else _Guarded(c) for c in built],
+        seed=seed,
+        agent_ids=list(agent_ids),
+        trials=trials,
+        labels=[label(c) for c in controllers],
+    )
     record_replay(batch, path)
     return batch.results()

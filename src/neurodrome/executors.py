@@ -3,7 +3,8 @@ cluster, or any ``concurrent.futures.Executor``.
 
 Everything goes through one interface, ``Executor.submit(fn, *args) -> Future``; the
 local pool and Dask's ``Client.get_executor`` both provide it. A local pool whose worker
-dies is rebuilt and the lost chunks are sent again (see :func:`run_chunks`).
+dies is rebuilt and the lost chunks are sent again (see :func:`run_chunks`); on Dask the
+scheduler itself re-runs the tasks of a lost worker.
 """
 
 from __future__ import annotations
@@ -24,26 +25,42 @@ def default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
+def _load_core() -> None:
+    """Worker initializer: import the simulator once, when the worker starts, not on its
+    first chunk."""
+    import neurodrome.evaluate  # noqa: F401
+
+
 class LocalPool:
     """A pool of local worker processes that survives the death of a worker.
 
-    Keep one for many evaluations (an evolver's whole run) to pay process start-up once.
+    Keep one for many evaluations (an evolver's whole run) to pay process start-up once::
+
+        with LocalPool(4) as pool:
+            for generation in range(100):
+                results = evaluate(world, population, seed=generation, executor=pool)
     """
 
     def __init__(self, workers: int | None = None) -> None:
+        if workers is not None and workers < 0:
+            raise ValueError(f"a pool needs 1 or more workers (0 or None: all cores), not {workers}")
         self.workers = workers or default_workers()
         self._pool: cf.ProcessPoolExecutor | None = None
+        self.rebuilds = 0  #: how many times a dead worker forced a new pool
 
     def executor(self) -> cf.ProcessPoolExecutor:
         if self._pool is None:
             # spawn: workers start clean, whatever threads or windows the parent holds
-            self._pool = cf.ProcessPoolExecutor(self.workers, mp_context=multiprocessing.get_context("spawn"))
+            self._pool = cf.ProcessPoolExecutor(
+                self.workers, mp_context=multiprocessing.get_context("spawn"), initializer=_load_core
+            )
         return self._pool
 
     def rebuild(self) -> None:
         if self._pool is not None:
             self._pool.shutdown(wait=False, cancel_futures=True)
         self._pool = None
+        self.rebuilds += 1
 
     def close(self) -> None:
         if self._pool is not None:
@@ -57,14 +74,57 @@ class LocalPool:
         self.close()
 
 
-def dask_executor(target: Any) -> cf.Executor:
+class DaskExecutor(cf.Executor):
+    """Chunks on a Dask cluster, from a scheduler address or a ``distributed.Client``.
+
+    A client made here from an address is closed by :meth:`shutdown`; a client passed in
+    stays open (it belongs to the caller). :meth:`share` places an object on every worker
+    once, so chunks refer to it instead of carrying a copy each.
+    """
+
+    def __init__(self, target: Any) -> None:
+        try:
+            import distributed
+        except ImportError:
+            raise MissingExtraError("cluster", "distributed", "Evaluating on a Dask cluster") from None
+        self.owns_client = not isinstance(target, distributed.Client)
+        self.client = distributed.Client(target) if self.owns_client else target
+        self._executor = self.client.get_executor(pure=False)
+        self._shared: list[Any] = []
+
+    @property
+    def workers(self) -> int:
+        """Threads across the cluster's workers now (at least 1)."""
+        return max(1, sum(self.client.nthreads().values()))
+
+    def share(self, obj: Any) -> Any:
+        future = self.client.scatter(obj, broadcast=True, hash=False)
+        self._shared.append(future)
+        return future
+
+    def submit(self, fn: Callable[..., Any], /, *args: Any, **kwargs: Any) -> cf.Future:
+        return self._executor.submit(fn, *args, **kwargs)
+
+    def release(self) -> None:
+        """Drop what :meth:`share` placed on the workers."""
+        for future in self._shared:
+            future.release()
+        self._shared.clear()
+
+    def shutdown(self, wait: bool = True, *, cancel_futures: bool = False) -> None:
+        self.release()
+        if self.owns_client:
+            self.client.close()
+
+
+def dask_executor(target: Any) -> DaskExecutor:
     """An executor on a Dask cluster, from a scheduler address or a ``distributed.Client``."""
-    try:
-        import distributed
-    except ImportError:
-        raise MissingExtraError("cluster", "distributed", "Evaluating on a Dask cluster") from None
-    client = target if isinstance(target, distributed.Client) else distributed.Client(target)
-    return client.get_executor(pure=False)
+    return DaskExecutor(target)
+
+
+def is_dask_client(obj: Any) -> bool:
+    """True for a ``distributed.Client``, found without importing Dask."""
+    return any(c.__name__ == "Client" and c.__module__.startswith("distributed") for c in type(obj).__mro__)
 
 
 def run_chunks(
@@ -80,7 +140,8 @@ def run_chunks(
 
     With neither ``executor`` nor ``pool`` the chunks run here, one after another. With a
     ``pool``, a chunk lost to a dead worker process is sent again on a rebuilt pool, up to
-    ``retries`` times. ``on_done(index, result)`` is called as each chunk finishes.
+    ``retries`` times; chunks that had finished are kept. ``on_done(index, result)`` is
+    called as each chunk finishes.
     """
     results: list[Any] = [None] * len(chunks)
     if executor is None and pool is None:
@@ -92,19 +153,29 @@ def run_chunks(
     pending = set(range(len(chunks)))
     attempts = 0
     while pending:
-        ex = executor if executor is not None else pool.executor()
-        futures = {ex.submit(fn, *chunks[k]): k for k in sorted(pending)}
+        ex = executor if executor is not None else pool.executor()  # type: ignore[union-attr]
+        futures: dict[cf.Future, int] = {}
         broken = False
-        for future in cf.as_completed(futures):
-            k = futures[future]
-            try:
-                results[k] = future.result()
-            except BrokenProcessPool:
-                broken = True
-                continue
-            pending.discard(k)
-            if on_done:
-                on_done(k, results[k])
+        try:
+            for k in sorted(pending):
+                futures[ex.submit(fn, *chunks[k])] = k
+        except BrokenProcessPool:
+            broken = True  # the pool broke while chunks were still being handed out
+        try:
+            for future in cf.as_completed(futures):
+                k = futures[future]
+                try:
+                    results[k] = future.result()
+                except BrokenProcessPool:
+                    broken = True
+                    continue
+                pending.discard(k)
+                if on_done:
+                    on_done(k, results[k])
+        except BaseException:
+            for future in futures:
+                future.cancel()
+            raise
         if broken and pending:
             attempts += 1
             if pool is None or attempts > retries:

@@ -4,11 +4,13 @@ from __future__ import annotations
 
 import argparse
 import json
+import re
 import sys
 import time
 from typing import Any, TextIO
 
 from ..control.reference import BUNDLED
+from ..control.spec import network_from_data
 from ..errors import NeurodromeError, Problem
 from ..evaluate import evaluate
 from ..jsonio import parse_json_text
@@ -73,31 +75,57 @@ class Progress:
         self.stream.flush()
 
 
-def read_json_lines(stream: TextIO, stop_on_error: bool) -> tuple[list[Any], dict[int, str]]:
-    """Controller sources from JSON Lines; returns (sources with None for bad lines, errors by line)."""
+def _line_problem(exc: NeurodromeError, number: int) -> NeurodromeError:
+    """The same problems, placed at line ``number`` of standard input."""
+    problems = []
+    for p in exc.problems:
+        match = re.match(r"^<stdin>(?::(\d+):(\d+))?(.*)$", p.where)
+        where = f"<stdin> line {number}"
+        if match and match.group(2):
+            where += f", column {match.group(2)}"
+        rest = match.group(3).strip() if match else p.where
+        problems.append(Problem(f"{where} {rest}".strip(), p.expected, p.found))
+    return NeurodromeError(problems, source="<stdin>")
+
+
+def read_json_lines(stream: TextIO, stop_on_error: bool) -> tuple[list[Any], dict[int, str], list[int]]:
+    """Controller sources from JSON Lines.
+
+    Returns (sources with None for bad lines, error text by position, input line number
+    of each position). Blank lines are skipped. A network description is validated here,
+    so its problems are reported with the line they came from.
+    """
     sources: list[Any] = []
     errors: dict[int, str] = {}
+    lines: list[int] = []
     for number, line in enumerate(stream, start=1):
         if not line.strip():
             continue
         try:
-            item = parse_json_text(line, f"<stdin>:{number}", NeurodromeError)
-            if not isinstance(item, (dict, str)):
-                raise NeurodromeError(Problem(f"<stdin> line {number}", "a network description (object) or a controller name (string)", type(item).__name__))
+            item = parse_json_text(line.rstrip("\r\n"), "<stdin>", NeurodromeError)
+            if isinstance(item, dict):
+                network_from_data(item, "<stdin>")
+            elif not isinstance(item, str):
+                raise NeurodromeError(Problem("<stdin>", "a network description (object) or a controller name (string)", type(item).__name__))
         except NeurodromeError as exc:
+            error = _line_problem(exc, number)
             if stop_on_error:
-                raise
-            errors[len(sources)] = f"line {number}: {exc.render()}"
-            print(f"neurodrome evaluate: skipping line {number}: {exc.render()}", file=sys.stderr)
-            sources.append(None)
-            continue
+                raise error from None
+            errors[len(sources)] = error.render()
+            print(f"neurodrome evaluate: line {number} skipped:\n{error.render()}", file=sys.stderr)
+            item = None
         sources.append(item)
-    return sources, errors
+        lines.append(number)
+    return sources, errors, lines
 
 
-def result_json(result: AgentResult | None, error: str | None = None) -> dict:
+def result_json(result: AgentResult | None, error: str | None = None, agent: int = 0) -> dict:
+    """One output object; a line that could not be read gets the same fields, empty."""
     if result is None:
-        return {"controller": None, "fitness": None, "fault": error, "trials": [], "steps": 0}
+        return {
+            "controller": None, "agent": agent, "fitness": None, "steps": 0, "fault": error,
+            "trials": [], "relocations": [], "behaviour": {"outcomes": [], "end_positions": []},
+        }
     return result.to_dict()
 
 
@@ -105,16 +133,23 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
     world = load_world(args.world)
     if args.trials is not None and args.trials < 1:
         raise NeurodromeError(Problem("--trials", "a whole number of trials >= 1", str(args.trials)))
+    if args.seed < 0:
+        raise NeurodromeError(Problem("--seed", "a whole number >= 0", str(args.seed)))
+    if args.workers < 0:
+        raise NeurodromeError(Problem("--workers", "1 or more worker processes (0: all cores)", str(args.workers)))
+    if args.scheduler and args.workers != 1:
+        raise NeurodromeError(Problem("--workers", "no --workers with --scheduler (the cluster's workers run the chunks)", str(args.workers)))
     from_stdin = args.controllers == ["-"]
     if "-" in args.controllers and not from_stdin:
         raise NeurodromeError(Problem("CONTROLLER", "'-' alone (standard input) or names and files", " ".join(args.controllers)))
     errors: dict[int, str] = {}
+    lines: list[int] = []
     if from_stdin:
-        sources, errors = read_json_lines(sys.stdin, args.stop_on_error)
+        sources, errors, lines = read_json_lines(sys.stdin, args.stop_on_error)
     else:
         sources = list(args.controllers)
+    chosen = _parse_indices(args.replay_agents, len(sources)) if args.replay else []
     run = [k for k, s in enumerate(sources) if s is not None]
-    executor = args.scheduler if args.scheduler else None
     progress = Progress(sys.stderr, not args.no_progress)
     results = evaluate(
         world,
@@ -122,22 +157,18 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
         seed=args.seed,
         trials=args.trials,
         workers=args.workers,
-        executor=executor,
+        executor=args.scheduler or None,
         agent_ids=run,
         progress=progress,
     ) if run else []
     by_index: dict[int, AgentResult] = dict(zip(run, results))
-    if args.replay:
-        from ..evaluate import write_replay
-
-        chosen = _parse_indices(args.replay_agents, len(sources))
-        chosen = [k for k in chosen if sources[k] is not None]
-        write_replay(world, [sources[k] for k in chosen], args.replay, agent_ids=chosen, seed=args.seed, trials=args.trials)
-        print(f"replay of {len(chosen)} agent(s) written to {args.replay}", file=sys.stderr)
     if args.json or from_stdin:
         out = sys.stdout
         for k in range(len(sources)):
-            out.write(json.dumps(result_json(by_index.get(k), errors.get(k)), allow_nan=False) + "\n")
+            record = result_json(by_index.get(k), errors.get(k), k)
+            if from_stdin:
+                record["line"] = lines[k]
+            out.write(json.dumps(record, allow_nan=False) + "\n")
         out.flush()
     else:
         detail = args.detail or len(results) <= 4
@@ -145,6 +176,18 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
             for r in results:
                 print_trials(r)
         print_summary(results)
+    if args.replay:
+        from ..evaluate import write_replay
+
+        # a source that could not be built has nothing to replay
+        chosen = [k for k in chosen if sources[k] is not None and not (by_index[k].fitness is None and by_index[k].fault)]
+        if not chosen:
+            raise NeurodromeError(Problem("--replay-agents", "at least one controller that could be built", args.replay_agents))
+        try:
+            write_replay(world, [sources[k] for k in chosen], args.replay, agent_ids=chosen, seed=args.seed, trials=args.trials)
+        except OSError as exc:
+            raise NeurodromeError(Problem(f"--replay {args.replay}", "a file that can be written", str(exc))) from None
+        print(f"replay of {len(chosen)} agent(s) written to {args.replay}", file=sys.stderr)
     faulted = any(r.fault for r in results) or bool(errors)
     return 1 if faulted else 0
 

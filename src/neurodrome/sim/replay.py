@@ -18,6 +18,8 @@ wheels             (T+1, A, 2)           wheel commands of the step that led her
 trial, phase       (T+1, A)              current trial (from 1) and Phase code
 fitness            (T+1, A)              running fitness
 site_values        (T+1, A, S)           each site's current value
+zones              (T+1, A, Z)           bool, robot inside each zone (home, sites, markers)
+zone_names         (Z,)                  zone names in column order
 outputs            (T+1, A, n)           neuron values (network controllers; else n = 0)
 modulation         (T+1, A, n)           modulatory sums m_i of the last step
 weights            (T+1, A, n, n)        current weights [source j, target i]
@@ -79,6 +81,9 @@ class Recorder:
             "fitness": b.fitness[rows].copy(),
             "site_values": b.site_values[rows].copy(),
         }
+        zones = b.zone_states()
+        self._zone_names = list(zones)
+        frame["zones"] = np.column_stack([zones[name][rows] for name in self._zone_names]).astype(bool)
         outs, mods, weights = [], [], []
         for ctrl, k in self._groups:
             state = ctrl.state() if hasattr(ctrl, "state") else None
@@ -119,6 +124,7 @@ class Recorder:
             agents=b.agent_ids[self.rows].copy(),
             labels=np.array([b.labels[r] for r in self.rows], dtype=str),
             control_period=np.array(b.control_period),
+            zone_names=np.array(self._zone_names, dtype=str),
             outputs=outputs,
             modulation=mods,
             weights=weights,
