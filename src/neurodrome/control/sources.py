@@ -89,9 +89,14 @@ def _from_factory(factory: Any, layout: Layout, name: str) -> Controller:
     )
 
 
+def _is_controller(source: Any) -> bool:
+    """A ready controller object (a controller class is a factory, not a controller)."""
+    return not isinstance(source, type) and hasattr(source, "act") and hasattr(source, "n_agents")
+
+
 def resolve(source: Any, layout: Layout) -> Controller:
     """Build the controller a source describes, for a world's observation layout."""
-    if hasattr(source, "act") and hasattr(source, "n_agents"):
+    if _is_controller(source):
         return source
     spec = load_spec(source)
     if spec is not None:
@@ -116,7 +121,7 @@ def resolve_all(sources: Sequence[Any], layout: Layout) -> list[Controller]:
     out: list[Controller] = []
     pending: list[NetworkSpec] = []
     for source in sources:
-        spec = load_spec(source) if not (hasattr(source, "act") and hasattr(source, "n_agents")) else None
+        spec = load_spec(source) if not _is_controller(source) else None
         if spec is not None:
             check_against_layout(spec, layout, label(source))
             pending.append(spec)
