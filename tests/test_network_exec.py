@@ -439,3 +439,31 @@ def test_logistic_output_maps_to_full_wheel_range():
     })
     ctrl = NetworkController([spec], LAYOUT)
     np.testing.assert_array_equal(ctrl.act(np.zeros((1, LAYOUT.size))), [[0.0, 1.0]])
+
+
+def test_courier_reflex_steers_away_from_walls():
+    """The bundled courier-reflex drives straight when centred and turns away from a near wall (push-pull steering, common practice)."""
+    from pathlib import Path
+
+    from neurodrome.control.spec import load_network
+
+    spec = load_network(Path(__file__).resolve().parents[1] / "assets" / "courier-reflex.net.json")
+    ctrl = NetworkController([spec], LAYOUT)
+    # Proximity 1 - d/range of a robot (radius 0.1) centred in a 0.5 m corridor, range 1 m,
+    # rays at [-90, -45, -20, 0, 20, 45, 90, 180] deg: d = 0.25 / sin(angle) - 0.1.
+    centred = np.zeros((1, LAYOUT.size))
+    for k, a in enumerate([-90, -45, -20, 20, 45, 90]):
+        d = 0.25 / abs(math.sin(math.radians(a))) - 0.1
+        centred[0, [0, 1, 2, 4, 5, 6][k]] = max(0.0, 1 - d)
+    left, right = ctrl.act(centred)[0]
+    assert left == pytest.approx(right, abs=1e-12) and left > 0.3
+    near_left = centred.copy()
+    near_left[0, [4, 5, 6]] += 0.1  # closer to the wall on the left (positive angles)
+    ctrl.reset_trial(np.ones(1, dtype=bool))
+    left, right = ctrl.act(near_left)[0]
+    assert left > right  # turns right, away from it
+    near_right = centred.copy()
+    near_right[0, [0, 1, 2]] += 0.1
+    ctrl.reset_trial(np.ones(1, dtype=bool))
+    left, right = ctrl.act(near_right)[0]
+    assert right > left
