@@ -43,28 +43,19 @@ def fit_viewport(spec: WorldSpec, geometry: Geometry, size: tuple[int, int], ui:
 
 def cast_rays(geometry: Geometry, pose: tuple[float, float, float], body_radius: float,
               angles_deg: Sequence[float], max_range: float) -> np.ndarray:
-    """End points (R, 2) of range-finder rays from the body surface to the nearest wall,
-    or to ``max_range`` when no wall is nearer. Used for the preview's start pose; the
-    simulator's own sensors supply the rays while it runs."""
+    """End points (R, 2) of range-finder rays at ``pose`` (x, y, heading in degrees): the
+    nearest wall hit, or the end of the range (``max_range`` past the body surface).
+    Computed by the simulator's own sensors, so the preview shows what the robot senses."""
+    from ..sim.sensors import WallGrid, ray_directions
+    from ..sim.sensors import cast_rays as cast
+
     x, y, heading = pose
-    ang = math.radians(heading) + np.radians(np.asarray(angles_deg, dtype=float))
-    d = np.column_stack([np.cos(ang), np.sin(ang)])  # (R, 2)
-    o = np.array([x, y]) + body_radius * d  # (R, 2)
-    segs = geometry.walls
-    if not len(segs):
-        return o + max_range * d
-    p = segs[:, :2][None, :, :]  # (1, W, 2)
-    e = (segs[:, 2:] - segs[:, :2])[None, :, :]
-    q = p - o[:, None, :]  # (R, W, 2)
-    dd = d[:, None, :]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        denom = dd[..., 0] * e[..., 1] - dd[..., 1] * e[..., 0]
-        t = (q[..., 0] * e[..., 1] - q[..., 1] * e[..., 0]) / denom
-        u = (q[..., 0] * dd[..., 1] - q[..., 1] * dd[..., 0]) / denom
-        hit = (np.abs(denom) > 1e-12) & (t >= 0) & (u >= 0) & (u <= 1)
-        t = np.where(hit, t, np.inf).min(axis=1)
-    t = np.minimum(t, max_range)
-    return o + t[:, None] * d
+    reach = body_radius + max_range
+    dirs = ray_directions(np.array([math.radians(heading)]), np.radians(np.asarray(angles_deg, dtype=float)))
+    if not len(geometry.walls):
+        return np.array([x, y]) + reach * dirs[0]
+    dist = cast(WallGrid(geometry.walls, reach), np.array([[x, y]], dtype=float), dirs, reach)[0]
+    return np.array([x, y]) + np.minimum(dist, reach)[:, None] * dirs[0]
 
 
 def marker_zone(marker) -> Polygon:
