@@ -2,8 +2,8 @@
 
 Update order of one control step (``NetworkController.act``), for every agent at once
 --------------------------------------------------------------------------------------
-Each agent keeps a vector o of neuron values (all 0 after a trial or lifetime reset) and
-its current weights w.
+Each agent keeps a vector o of neuron values (after a trial or lifetime reset: 1 for bias
+neurons, 0 for all others) and its current weights w.
 
 1. **Fed neurons take their values.** Every input neuron is set to its observation
    channel, ``o_j = obs[channel]``; every bias neuron to 1. Hidden and output neurons keep
@@ -26,12 +26,14 @@ its current weights w.
        M_i   = tanh(m_i / 2) if i has an incoming connection from a modulatory neuron, else 1
 
    (../shared/REFERENCES.md section 2; M_i = 1 is the plain Hebbian case), then is clipped
-   to the connection's bounds. The executor evaluates the bracket in the algebraically
-   equal form ``(eta A o_i + eta B) o'_j + (eta C o_i + eta D)`` (fewer array passes);
-   the per-neuron reference in the tests uses the form above and agrees to 1e-9. The presynaptic value is o'_j, the value that travelled
+   to the connection's bounds. The presynaptic value is o'_j, the value that travelled
    along the connection this step and produced o_i; the postsynaptic value is the new
-   o_i. So the rule correlates cause and effect across the connection's own delay. The
-   new weights are used from the next step on. Fixed connections never change.
+   o_i. So the rule correlates cause and effect across the connection's own delay, and
+   needs no second pass over the network. The new weights are used from the next step
+   on. Fixed connections never change. The executor evaluates the rule in the
+   algebraically equal form ``M_i * ((eta A o_i + eta B) o'_j + (eta C o_i + eta D))``
+   (fewer array passes); the per-neuron reference in the tests uses the form above and
+   agrees to 1e-9.
 5. **Wheel commands.** ``left, right`` are the values of the two output neurons mapped to
    [-1, 1]: tanh_half as is; logistic 2*o - 1 (0.5 means stop); linear clipped to
    [-1, 1]. NaN passes through unchanged: ``act`` never raises on a non-finite value, the
