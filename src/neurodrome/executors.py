@@ -98,7 +98,8 @@ class DaskExecutor(cf.Executor):
         return max(1, sum(self.client.nthreads().values()))
 
     def share(self, obj: Any) -> Any:
-        future = self.client.scatter(obj, broadcast=True, hash=False)
+        # in a list: scatter treats a dict as {key: value} pairs to place separately
+        (future,) = self.client.scatter([obj], broadcast=True, hash=False)
         self._shared.append(future)
         return future
 
