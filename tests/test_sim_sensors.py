@@ -44,7 +44,7 @@ def test_rays_match_pymunk_and_shapely(path):
     ray_angles = np.radians(world.robot.range_finders.angles_deg)
     reach = batch.reach
     dirs = ray_directions(ang, ray_angles)
-    got = cast_rays(batch.grid, pos, dirs, reach)
+    got = cast_rays(batch.grid, pos, ang, ray_angles, reach)
 
     space, origin = batch.arena.space, batch.arena.origins[0]
     only_walls = pymunk.ShapeFilter(mask=WALL_CATEGORY)

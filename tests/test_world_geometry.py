@@ -213,3 +213,15 @@ def test_obstacle_warnings():
                                  {"polygon": [[5, 5], [6, 5], [6, 6]]}])
     found = [(f.code, f.where) for f in lint(spec, build_geometry(spec)) if f.level == "warning"]
     assert ("obstacle-empty", "$.obstacles[0].polygon") in found and ("obstacle-outside", "$.obstacles[1]") in found
+
+
+def test_corridor_doubling_back_keeps_its_floor():
+    """A centre line that reverses onto itself covers the straight corridor's floor,
+    (l + w) * w with square caps (hand computation), not a degenerate sliver."""
+    from neurodrome.world.geometry import corridor_polygon
+
+    assert corridor_polygon([(0.0, 0.0), (0.0, 0.5), (0.0, 1.0), (0.0, 0.0)], 1.0).area == pytest.approx(2.0)
+    # a hairpin of two 2 m legs 0.6 m apart, width 0.5: two (2 + 0.5) x 0.5 floors overlapping
+    # in a strip; computed by shapely as the union of the two capped legs
+    legs = corridor_polygon([(0.0, 0.0), (2.0, 0.0)], 0.5).union(corridor_polygon([(2.0, 0.0), (2.0, 0.6)], 0.5)).union(corridor_polygon([(2.0, 0.6), (0.0, 0.6)], 0.5))
+    assert corridor_polygon([(0.0, 0.0), (2.0, 0.0), (2.0, 0.6), (0.0, 0.6)], 0.5).area == pytest.approx(legs.area)

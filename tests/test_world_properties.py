@@ -77,7 +77,7 @@ def test_walls_are_closed_rings(corridors):
     walls = g.walls[: g.boundary_walls]
     starts = Counter(map(tuple, walls[:, :2].round(9)))
     ends = Counter(map(tuple, walls[:, 2:].round(9)))
-    assert len(walls) >= 4 and starts == ends
+    assert len(walls) >= 3 and starts == ends  # a thick closed loop can fill in to a triangle
 
 
 @SETTINGS

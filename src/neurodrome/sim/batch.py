@@ -178,7 +178,8 @@ class Batch:
         """(N, R, 2) end points of the range-finder rays of the last observation (a hit
         point, or the end of the range)."""
         dist = np.minimum(self.ray_distances, self.reach)
-        return self._ray_origin[:, None, :] + self._ray_dirs * dist[..., None]
+        dirs = ray_directions(self._ray_heading, self.ray_angles)
+        return self._ray_origin[:, None, :] + dirs * dist[..., None]
 
     def zone_states(self) -> dict[str, np.ndarray]:
         """Per zone an (N,) bool array: ``home``, each site name, each marker name."""
@@ -193,9 +194,9 @@ class Batch:
     def observe(self) -> np.ndarray:
         """(N, C) observations for the current state; see :class:`Layout` for channels."""
         pos = self.positions
-        dirs = ray_directions(self.angles, self.ray_angles)
-        dist = cast_rays(self.grid, pos, dirs, self.reach)
-        self._ray_origin, self._ray_dirs, self.ray_distances = pos, dirs, dist
+        heading = self.angles.copy()
+        dist = cast_rays(self.grid, pos, heading, self.ray_angles, self.reach)
+        self._ray_origin, self._ray_heading, self.ray_distances = pos, heading, dist
         rf = self.spec.robot.range_finders
         prox = proximity(dist, self.spec.robot.radius, rf.max_range)
         if rf.noise > 0:

@@ -66,32 +66,34 @@ def ray_directions(angles: np.ndarray, ray_angles: np.ndarray) -> np.ndarray:
     return np.stack([np.cos(theta), np.sin(theta)], axis=-1)
 
 
-def cast_rays(grid: WallGrid, origins: np.ndarray, dirs: np.ndarray, length: float) -> np.ndarray:
+def cast_rays(grid: WallGrid, origins: np.ndarray, headings: np.ndarray, ray_angles: np.ndarray, length: float) -> np.ndarray:
     """Distance along each ray to the first wall, ``inf`` where none is within ``length``.
 
-    origins (N, 2), dirs (N, R, 2) unit vectors -> (N, R). The ray is the segment
-    origin + t d, 0 <= t <= length; a wall a + u e, 0 <= u <= 1, is hit where the 2D
-    cross products give t and u in range (common practice: parametric line intersection).
+    origins (N, 2), headings (N,) and ray_angles (R,) in radians -> (N, R). Ray r of agent
+    i is the segment origin + t d, d = (cos, sin)(heading + ray angle), 0 <= t <= length;
+    a wall a + u e, 0 <= u <= 1, is hit where the 2D cross products give t and u in range
+    (common practice: parametric line intersection).
     """
     origins = np.ascontiguousarray(origins, dtype=np.float64)
-    dirs = np.ascontiguousarray(dirs, dtype=np.float64)
-    cells = grid.cells_of(origins)
-    out = np.empty(dirs.shape[:2])
-    _cast_kernel(origins, dirs, grid.candidates, cells, grid.start, grid.edge, float(length), out)
+    headings = np.ascontiguousarray(headings, dtype=np.float64)
+    ray_angles = np.ascontiguousarray(ray_angles, dtype=np.float64)
+    out = np.empty((len(origins), len(ray_angles)))
+    _cast_kernel(origins, headings, ray_angles, grid.candidates, grid.cells_of(origins), grid.start, grid.edge, float(length), out)
     return out
 
 
 @njit(cache=True, nogil=True)
-def _cast_kernel(origins, dirs, candidates, cells, start, edge, length, out):  # pragma: no cover - compiled
-    n, r = dirs.shape[0], dirs.shape[1]
+def _cast_kernel(origins, headings, ray_angles, candidates, cells, start, edge, length, out):  # pragma: no cover - compiled
+    n, r = origins.shape[0], ray_angles.shape[0]
     k = candidates.shape[1]
     for i in range(n):
         px = origins[i, 0]
         py = origins[i, 1]
         row = candidates[cells[i]]
         for j in range(r):
-            dx = dirs[i, j, 0]
-            dy = dirs[i, j, 1]
+            theta = headings[i] + ray_angles[j]
+            dx = np.cos(theta)
+            dy = np.sin(theta)
             best = np.inf
             for m in range(k):
                 w = row[m]

@@ -54,7 +54,8 @@ def cast_rays(geometry: Geometry, pose: tuple[float, float, float], body_radius:
     dirs = ray_directions(np.array([math.radians(heading)]), np.radians(np.asarray(angles_deg, dtype=float)))
     if not len(geometry.walls):
         return np.array([x, y]) + reach * dirs[0]
-    dist = cast(WallGrid(geometry.walls, reach), np.array([[x, y]], dtype=float), dirs, reach)[0]
+    grid = WallGrid(geometry.walls, reach)
+    dist = cast(grid, np.array([[x, y]], dtype=float), np.array([math.radians(heading)]), np.radians(np.asarray(angles_deg, dtype=float)), reach)[0]
     return np.array([x, y]) + np.minimum(dist, reach)[:, None] * dirs[0]
 
 

@@ -7,6 +7,7 @@ the wall segments, to which the world's extra walls are added.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from functools import cached_property
 
@@ -62,13 +63,36 @@ class Geometry:
         return bool(self.free.covers(Point(x, y)))
 
 
+#: Turns sharper than this (degrees) split a corridor's centre line into separately
+#: buffered pieces: a mitred join of a path that doubles back on itself is degenerate
+#: (GEOS returns a sliver for an exact reversal).
+HAIRPIN_DEG = 135.0
+
+
 def corridor_polygon(path: list[tuple[float, float]], width: float) -> Polygon:
     """A corridor's floor: its centre line buffered by width/2, square caps, mitred joins.
 
     Area of a straight corridor of length l and width w is (l + w) * w (each square cap
-    adds w/2 at both ends).
+    adds w/2 at both ends). At a hairpin (a turn sharper than ``HAIRPIN_DEG``) the line
+    is split and the square-capped pieces are unioned.
     """
-    return LineString(path).buffer(width / 2.0, cap_style="square", join_style="mitre", mitre_limit=10.0)
+    pieces = _split_at_hairpins(path)
+    polys = [LineString(p).buffer(width / 2.0, cap_style="square", join_style="mitre", mitre_limit=10.0) for p in pieces]
+    return polys[0] if len(polys) == 1 else unary_union(polys)
+
+
+def _split_at_hairpins(path: list[tuple[float, float]]) -> list[list[tuple[float, float]]]:
+    pts = np.asarray(path, dtype=float)
+    pieces, start = [], 0
+    limit = math.cos(math.radians(180.0 - HAIRPIN_DEG))
+    for k in range(1, len(pts) - 1):
+        a, b = pts[k] - pts[k - 1], pts[k + 1] - pts[k]
+        cos_turn = float(np.dot(a, b) / (np.linalg.norm(a) * np.linalg.norm(b)))
+        if cos_turn < -limit:  # the direction turns by more than HAIRPIN_DEG
+            pieces.append([tuple(p) for p in pts[start : k + 1]])
+            start = k
+    pieces.append([tuple(p) for p in pts[start:]])
+    return pieces
 
 
 def free_space(spec: WorldSpec) -> Polygon | MultiPolygon:

@@ -234,7 +234,7 @@ class Task(_Model):
 
 
 class Physics(_Model):
-    time_step_s: Annotated[float, Field(gt=0, le=0.1, allow_inf_nan=False, strict=True)] = 0.02
+    time_step_s: Annotated[float, Field(gt=0, le=0.1, allow_inf_nan=False, strict=True)] = 0.05
     control_period_s: Annotated[float, Field(gt=0, le=1.0, allow_inf_nan=False, strict=True)] = 0.1
 
     @model_validator(mode="after")

@@ -50,7 +50,7 @@ def _base(name: str, description: str, width: float, trials: int, time_limit: fl
             "range_finders": {"angles_deg": [-90, -45, -20, 0, 20, 45, 90, 180], "max_range": 1.0, "noise": 0.0},
             "signals": ["home", "junction", "reward", "bias"],
         },
-        "physics": {"time_step_s": 0.02, "control_period_s": 0.1},
+        "physics": {"time_step_s": 0.05, "control_period_s": 0.1},
         "task": {"trials": trials, "time_limit_s": time_limit},
     }
 
