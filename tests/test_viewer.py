@@ -224,3 +224,38 @@ def test_viewer_modules_import_without_pygame_side_effects():
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.strip() == "False"
+
+
+def test_chart_follows_a_plastic_weight_as_it_learns(pg):
+    """The charted weight of a plastic bias -> left-wheel connection changes every step by
+    the plain Hebbian rule dw = eta (A o_j o_i + D) with o_j = 1 (REFERENCES.md section 2,
+    no modulatory input so the factor is 1), read from the panel's own history."""
+    from neurodrome.view.playback import LivePlayback
+    from neurodrome.view.show import Show
+
+    eta, A, D = 0.05, 1.0, -0.02
+    net = {
+        "format": "neurodrome-network", "version": 1, "name": "hebb-check",
+        "rule": {"learning_rate": eta, "correlation": A, "presynaptic": 0.0, "postsynaptic": 0.0, "constant": D},
+        "weight_bounds": [-2.0, 2.0],
+        "neurons": [{"id": "front", "role": "input", "channel": "range_3"}, {"id": "b", "role": "bias"},
+                    {"id": "L", "role": "output", "wheel": "left"}, {"id": "R", "role": "output", "wheel": "right"}],
+        "connections": [{"source": "b", "target": "L", "weight": 0.5, "plastic": True},
+                        {"source": "b", "target": "R", "weight": 0.5},
+                        {"source": "front", "target": "L", "weight": -1.0}],
+    }
+    pb = LivePlayback(small_world(), net, seed=0)
+    show = Show(pb)
+    panel = show.panel
+    assert panel.links[panel.selected].plastic
+    left = pb.neuron_ids.index("L")
+    for _ in range(20):
+        before = panel.history[-1][2]
+        events = show.step()
+        if any(kind == "trial-start" for kind, _ in events):
+            continue
+        after = panel.history[-1][2]
+        o_i = float(pb.net.outputs[left])
+        assert after - before == pytest.approx(eta * (A * 1.0 * o_i + D), abs=1e-12)
+    weights = [w for _, _, w in panel.history]
+    assert len(set(weights)) > 10, "the weight changes live"

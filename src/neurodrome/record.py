@@ -167,7 +167,7 @@ def record(
     per_frame = speed / (fps * pb.control_period)  # control steps per video frame
     label = short_label(pb.label)
     heading = title or pb.spec.name
-    sub = f"{label}  \u00b7  seed {getattr(pb, 'seed', '-')}" if hasattr(pb, "seed") else label
+    sub = f"{label}  \u00b7  seed {pb.seed}"
     last: np.ndarray | None = None
     try:
         if title:

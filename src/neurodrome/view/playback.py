@@ -46,6 +46,7 @@ class Playback:
 
     spec: WorldSpec
     label: str
+    seed: int
     n_trials: int
     control_period: float
     step_limit: int
@@ -170,6 +171,7 @@ class ReplayPlayback(Playback):
         self.row = agent
         self.label = str(data["labels"][agent]) if len(data["labels"]) else f"agent {agent}"
         self.control_period = float(data["control_period"])
+        self.seed = int(data["seed"])
         self.step_limit = max(1, math.ceil(spec.task.time_limit_s / self.control_period - 1e-9))
         a = agent
         self._pose = data["pose"][:, a]
