@@ -1,4 +1,4 @@
-"""Sub-commands of the evolution area: ``report`` (and, later, ``evolve``).
+"""Sub-commands of the evolution area: ``evolve`` and ``report``.
 
 Each command is a pair: ``_add_<name>(subparsers)`` builds its parser and sets ``func``;
 ``_run_<name>(args)`` does the work and returns the exit status. :func:`register` calls
@@ -76,8 +76,89 @@ def _run_report(args: argparse.Namespace) -> int:
     return 0
 
 
-#: The commands of this area; the evolver's ``_add_evolve`` joins this tuple.
-COMMANDS: tuple[Callable[[argparse._SubParsersAction], None], ...] = (_add_report,)
+def _treatment_list(text: str) -> list[str]:
+    """Parse ``"modulated,fixed"``; the configuration validates the names."""
+    return [part.strip() for part in text.split(",") if part.strip()]
+
+
+def _add_evolve(sub: argparse._SubParsersAction) -> None:
+    parser = sub.add_parser(
+        "evolve",
+        help="evolve controllers with the reference NEAT evolver",
+        description=(
+            "Evolve plastic networks for a world with NEAT-style topology evolution (historical "
+            "markings, speciation with an adaptive threshold, elitism), by fitness, novelty or both. "
+            "Each generation appends to RUN_DIR/log.jsonl, writes the best genome so far to "
+            "RUN_DIR/best.net.json (a network file for evaluate, watch and record) and an atomic "
+            "checkpoint; --resume continues a stopped run exactly. With several runs or treatments "
+            "each run gets RUN_DIR/<treatment>-<seed>/. Options given here override the config file."
+        ),
+    )
+    parser.add_argument("world", metavar="WORLD", help="world file")
+    parser.add_argument("--config", metavar="FILE", default=None, help="evolver configuration (JSON); defaults otherwise")
+    parser.add_argument("-o", "--output", required=True, metavar="RUN_DIR", help="run directory to write")
+    parser.add_argument("--generations", type=int, default=None, metavar="G", help="generations per run")
+    parser.add_argument("--population", type=int, default=None, metavar="P", help="genomes per generation")
+    parser.add_argument("--seed", type=int, default=None, metavar="S", help="seed of the first run (run r: S + r)")
+    parser.add_argument("--runs", type=int, default=None, metavar="N", help="independent runs per treatment")
+    parser.add_argument("--treatments", type=_treatment_list, default=None, metavar="A,B",
+                        help="treatments: modulated, plastic, fixed")
+    parser.add_argument("--workers", type=int, default=1, metavar="K",
+                        help="local worker processes for evaluation (0: all cores; default 1, in this process)")
+    parser.add_argument("--scheduler", default=None, metavar="ADDR", help="evaluate on a Dask cluster (tcp://host:8786)")
+    parser.add_argument("--resume", action="store_true", help="continue the runs in RUN_DIR from their checkpoints")
+    parser.add_argument("--quiet", action="store_true", help="no progress display")
+    parser.add_argument("--json", action="store_true", help="print a JSON summary of the runs")
+    parser.set_defaults(func=_run_evolve)
+
+
+def _run_evolve(args: argparse.Namespace) -> int:
+    import sys
+    import time
+
+    from ..evolve.config import load_config, with_overrides
+    from ..evolve.run import evolve
+
+    config = with_overrides(load_config(args.config), generations=args.generations, population=args.population,
+                            seed=args.seed, runs=args.runs, treatments=args.treatments)
+    started = time.perf_counter()
+    tty = sys.stderr.isatty()
+
+    def progress(treatment: str, seed: int, gen: int, total: int, best: float, median: float, so_far: float) -> None:
+        text = (f"{treatment} seed {seed}: generation {gen + 1}/{total}  best {best:.4g}  median {median:.4g}  "
+                f"best so far {so_far:.4g}  [{time.perf_counter() - started:.0f} s]")
+        print(("\r" + text + "\033[K") if tty else text, end="" if tty else "\n", file=sys.stderr, flush=True)
+        if tty and gen + 1 == total:
+            print(file=sys.stderr)
+
+    import signal
+
+    def stop(_signum: int, _frame: object) -> None:
+        # a terminated run unwinds like an interrupted one, so its worker pool is shut down;
+        # the checkpoint of the last whole generation is already on disk
+        raise KeyboardInterrupt
+
+    previous = signal.signal(signal.SIGTERM, stop)
+    try:
+        summaries = evolve(args.world, config, args.output, workers=args.workers, scheduler=args.scheduler,
+                           resume=args.resume, progress=None if args.quiet else progress)
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+    if args.json:
+        print(json.dumps([{"run_dir": str(s.run_dir), "treatment": s.treatment, "seed": s.seed,
+                           "generations": s.generations, "best_so_far": s.best_so_far,
+                           "champion_generation": s.champion_generation, "seconds": s.seconds}
+                          for s in summaries], indent=2))
+        return 0
+    for s in summaries:
+        print(f"{s.run_dir}: {s.treatment} seed {s.seed}, {s.generations} generations, best fitness "
+              f"{s.best_so_far:.6g} (generation {s.champion_generation}), {s.seconds:.0f} s; champion in "
+              f"{s.run_dir}/best.net.json")
+    return 0
+
+
+#: The commands of this area.
+COMMANDS: tuple[Callable[[argparse._SubParsersAction], None], ...] = (_add_evolve, _add_report)
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
