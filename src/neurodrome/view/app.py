@@ -214,6 +214,7 @@ class Viewer:
             raise no_display(str(exc)) from None
         pg.display.set_caption(f"neurodrome watch \u00b7 {self.pb.spec.name} \u00b7 {self.pb.label}")
         clock = pg.time.Clock()
+        canvas = None
         dt = 0.0
         try:
             while not self.quit and (max_frames is None or self.frames < max_frames):
@@ -223,8 +224,10 @@ class Viewer:
                     self.handle_event(ev)
                 self.advance(dt)
                 screen = pg.display.get_surface()
+                if canvas is None or screen is not self._surface:  # first frame or resized
+                    canvas = PygameCanvas(surface=screen)  # keeps its fonts across frames
                 self._surface = screen
-                self.render(PygameCanvas(surface=screen))
+                self.render(canvas)
                 pg.display.flip()
                 # a fixed frame time (tests, scripted runs) need not wait for the wall clock
                 measured = clock.tick(fps if fixed_dt is None else 0) / 1000.0

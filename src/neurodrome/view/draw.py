@@ -180,20 +180,34 @@ class PygameCanvas:
             surface = pg.Surface((size[0] * self.supersample, size[1] * self.supersample))
         self.surface = surface
         self._fonts: dict[tuple[int, bool], Any] = {}
+        self._alpha: Any = None  # one reusable transparent layer; see _layer
 
     @property
     def size(self) -> tuple[int, int]:
         return self.surface.get_size()
 
     def _layer(self, color: Color):
-        """Where to draw a colour: the surface itself, or a transparent layer for alpha."""
+        """Where to draw a colour: the surface itself, or a transparent layer for alpha.
+
+        The layer is kept and reused, and only the rectangle a shape touched is blended
+        and cleared again: a fresh full-frame layer per translucent shape cost most of
+        a live frame's time."""
         if len(color) == 4 and color[3] < 255:
-            return self._pg.Surface(self.size, self._pg.SRCALPHA)
+            if self._alpha is None or self._alpha.get_size() != self.size:
+                self._alpha = self._pg.Surface(self.size, self._pg.SRCALPHA)
+            return self._alpha
         return None
 
-    def _flush(self, layer) -> None:
-        if layer is not None:
+    def _flush(self, layer, rect=None) -> None:
+        if layer is None:
+            return
+        if rect is None:
             self.surface.blit(layer, (0, 0))
+            layer.fill((0, 0, 0, 0))
+            return
+        rect = rect.inflate(4, 4).clip(layer.get_rect())
+        self.surface.blit(layer, rect.topleft, area=rect)
+        layer.fill((0, 0, 0, 0), rect)
 
     def clear(self, color: Color) -> None:
         self.surface.fill(color[:3])
@@ -204,8 +218,7 @@ class PygameCanvas:
             return
         if fill is not None:
             layer = self._layer(fill)
-            self._pg.draw.polygon(layer or self.surface, fill, pts)
-            self._flush(layer)
+            self._flush(layer, self._pg.draw.polygon(layer or self.surface, fill, pts))
         if outline is not None:
             self.polyline(pts, outline, width, closed=True)
 
@@ -217,43 +230,43 @@ class PygameCanvas:
         target = layer or self.surface
         w = max(1, round(width))
         if w <= 1:
-            self._pg.draw.aalines(target, color, closed, pts)
+            rect = self._pg.draw.aalines(target, color, closed, pts)
         else:
             seq = pts + [pts[0]] if closed else pts
-            for a, b in zip(seq[:-1], seq[1:]):
-                self._thick_segment(target, color, a, b, w)
-        self._flush(layer)
+            rects = [self._thick_segment(target, color, a, b, w) for a, b in zip(seq[:-1], seq[1:])]
+            rect = rects[0].unionall(rects[1:])
+        self._flush(layer, rect)
 
-    def _thick_segment(self, target, color, a: PointPx, b: PointPx, w: int) -> None:
+    def _thick_segment(self, target, color, a: PointPx, b: PointPx, w: int):
+        """Draws one wide segment; returns the rectangle it touched."""
         # pygame's wide lines leave gaps at joints; round ends close them.
-        self._pg.draw.line(target, color, a, b, w)
+        rect = self._pg.draw.line(target, color, a, b, w)
         r = w / 2.0
         if r >= 1.5:
-            self._pg.draw.circle(target, color, a, r)
-            self._pg.draw.circle(target, color, b, r)
+            rect = rect.unionall([self._pg.draw.circle(target, color, a, r), self._pg.draw.circle(target, color, b, r)])
+        return rect
 
     def segments(self, segments, color, width=1) -> None:
         segs = np.asarray(segments, dtype=float).reshape(-1, 4)
         layer = self._layer(color)
         target = layer or self.surface
         w = max(1, round(width))
+        rects = []
         for x0, y0, x1, y1 in segs:
             if w <= 1:
-                self._pg.draw.aaline(target, color, (x0, y0), (x1, y1))
+                rects.append(self._pg.draw.aaline(target, color, (x0, y0), (x1, y1)))
             else:
-                self._thick_segment(target, color, (x0, y0), (x1, y1), w)
-        self._flush(layer)
+                rects.append(self._thick_segment(target, color, (x0, y0), (x1, y1), w))
+        self._flush(layer, rects[0].unionall(rects[1:]) if rects else None)
 
     def circle(self, center, radius, fill=None, outline=None, width=1) -> None:
         c = (float(center[0]), float(center[1]))
         if fill is not None:
             layer = self._layer(fill)
-            self._pg.draw.circle(layer or self.surface, fill, c, radius)
-            self._flush(layer)
+            self._flush(layer, self._pg.draw.circle(layer or self.surface, fill, c, radius))
         if outline is not None:
             layer = self._layer(outline)
-            self._pg.draw.circle(layer or self.surface, outline, c, radius, max(1, round(width)))
-            self._flush(layer)
+            self._flush(layer, self._pg.draw.circle(layer or self.surface, outline, c, radius, max(1, round(width))))
 
     def _font(self, size: int, bold: bool):
         key = (size, bold)
