@@ -26,7 +26,7 @@ def dummy_video(monkeypatch):
 
 
 def small_world(trials: int = 3):
-    """A short single junction whose store values swap after trial 1."""
+    """A short single junction whose store values swap once, at a fixed trial."""
     return world_from_data(make("junction", trials=trials, stem=1.0, arm=0.7, relocate="fixed"))
 
 

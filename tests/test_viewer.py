@@ -31,7 +31,7 @@ def pg(monkeypatch):
 
 
 def small_world(trials: int = 3):
-    """A short single junction whose store values swap after trial 1."""
+    """A short single junction whose store values swap once, at a fixed trial."""
     return world_from_data(make("junction", trials=trials, stem=1.0, arm=0.7, relocate="fixed"))
 
 
@@ -259,3 +259,28 @@ def test_chart_follows_a_plastic_weight_as_it_learns(pg):
         assert after - before == pytest.approx(eta * (A * 1.0 * o_i + D), abs=1e-12)
     weights = [w for _, _, w in panel.history]
     assert len(set(weights)) > 10, "the weight changes live"
+
+
+def test_status_and_restock_cue_are_drawn(pg):
+    """After the restock (values swap at the world file's fixed trial) the status
+    shows the trial, score and one restock, and a banner names both stores' changes."""
+    from neurodrome.view.draw import RecordingCanvas
+    from neurodrome.view.playback import LivePlayback
+    from neurodrome.view.show import Show, ShowOptions
+
+    world = small_world()
+    pb = LivePlayback(world, "courier-memory", seed=0)
+    show = Show(pb)
+    before = dict(world.task.site_values)
+    while pb.relocations == 0:
+        show.step()
+    canvas = RecordingCanvas(1280, 720)
+    show.draw(canvas, ShowOptions())
+    texts = [c["text"] for c in canvas.named("text")]
+    after = world.task.relocations[0].after_trial
+    assert f"{after + 1} of 3" in texts and "1" in texts and f"{pb.fitness:+.2f}" in texts
+    banner = next(t for t in texts if t.startswith(f"RESTOCK after trial {after}"))
+    for name, value in before.items():
+        assert f"{name} {value:g} -> {pb.site_value_map()[name]:g}" in banner
+    rings = [c for c in canvas.named("circle") if c["fill"] is None and c["width"] == 5]
+    assert len(rings) >= len(world.sites), "a pulsing ring on each store whose value moved"
