@@ -31,6 +31,12 @@ def _load_core() -> None:
     import neurodrome.evaluate  # noqa: F401
 
 
+def _pause(seconds: float) -> None:
+    import time
+
+    time.sleep(seconds)
+
+
 class LocalPool:
     """A pool of local worker processes that survives the death of a worker.
 
@@ -55,6 +61,14 @@ class LocalPool:
                 self.workers, mp_context=multiprocessing.get_context("spawn"), initializer=_load_core
             )
         return self._pool
+
+    def start(self) -> LocalPool:
+        """Start every worker process now (they otherwise start as chunks arrive)."""
+        ex = self.executor()
+        # tasks that overlap in time force one process each
+        for future in [ex.submit(_pause, 0.3) for _ in range(self.workers)]:
+            future.result()
+        return self
 
     def rebuild(self) -> None:
         if self._pool is not None:
