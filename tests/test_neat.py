@@ -113,3 +113,13 @@ def test_largest_remainder_and_ranks():
     assert counts.sum() == 10 and list(counts) == [3, 2, 5]
     values = np.array([3.0, 1.0, 3.0, 2.0])
     assert np.allclose(ranks01(values), (rankdata(values) - 1) / 3)
+
+
+def test_highest_fitness_survives_novelty_selection():
+    """Under a novelty objective the genome of highest fitness is still copied unchanged (our elitism rule)."""
+    pop = Population(_config(objective={"kind": "mix", "k": 3}), LAYOUT, "modulated", seed=7)
+    fitness = _toy_scores(pop)
+    scores = -fitness  # the objective ranks the fittest last
+    best = pop.genomes[int(np.argmax(fitness))].copy()
+    pop.tell(scores, fitness)
+    assert best in pop.genomes[:2]

@@ -13,7 +13,8 @@ One generation (:meth:`Population.tell`), after the current genomes were evaluat
    divided by its species' size; each species gets offspring in proportion to the sum of
    its adjusted scores (largest-remainder rounding). Species that have not improved for
    ``stagnation`` generations get none, unless they hold the best genome.
-4. **Reproduction**: the population's ``elitism`` best genomes are copied unchanged; so is
+4. **Reproduction**: the population's ``elitism`` best genomes are copied unchanged (and the
+   genome of highest fitness, when selection runs on novelty or a mix); so is
    the champion of every species of at least ``species_elitism_min_size``; the other
    offspring come from parents chosen by tournament or truncation inside the species,
    with crossover at a given probability, then mutation.
@@ -199,8 +200,11 @@ class Population:
         mutate(child, self.tracker, self.rng, self.rates)
         return child
 
-    def tell(self, scores: Sequence[float]) -> None:
-        """Breed the next generation from objective ``scores`` (N,) of the current genomes."""
+    def tell(self, scores: Sequence[float], fitness: Sequence[float] | None = None) -> None:
+        """Breed the next generation from objective ``scores`` (N,) of the current genomes.
+
+        With ``fitness`` (N,) given, the genome of highest fitness is kept unchanged as well,
+        so a novelty-driven run never loses its best solution."""
         scores = np.asarray(scores, dtype=float)
         if scores.shape != (len(self.genomes),):
             raise ValueError(f"{len(self.genomes)} scores expected, got shape {scores.shape}")
@@ -210,6 +214,11 @@ class Population:
         sel = self.config.selection
         order = sorted(range(len(scores)), key=lambda k: (-scores[k], k))
         elites = order[:sel.elitism]
+        if fitness is not None and sel.elitism > 0:
+            fit = np.asarray(fitness, dtype=float)
+            top_fit = min(range(len(fit)), key=lambda k: (-fit[k], k))
+            if top_fit not in elites:
+                elites.append(top_fit)
         best_index = order[0]
         for sp in self.species:
             top = max(scores[m] for m in sp.members)

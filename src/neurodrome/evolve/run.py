@@ -187,7 +187,7 @@ class Run:
             self.champion_generation = gen
         sizes = [len([c for c in g.connections.values() if c.enabled]) for g in pop.genomes]
         hidden = [len(g.hidden) for g in pop.genomes]
-        pop.tell(scores)
+        pop.tell(scores, fitness)
         record = dict(best=float(fitness[top]), median=float(np.median(fitness)), mean=float(np.mean(fitness)),
                       species=len(pop.species), eval_seconds=seconds, best_so_far=self.best_so_far,
                       threshold=pop.threshold, archive=len(pop.archive) if pop.archive is not None else 0,
