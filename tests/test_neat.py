@@ -123,3 +123,21 @@ def test_highest_fitness_survives_novelty_selection():
     best = pop.genomes[int(np.argmax(fitness))].copy()
     pop.tell(scores, fitness)
     assert best in pop.genomes[:2]
+
+
+def test_start_genome_seeds_generation_zero():
+    """Incremental start: an unchanged copy first; under 'fixed' no plastic gene and no modulatory node survive."""
+    from neurodrome.evolve.genome import InnovationTracker, MutationRates, _add_node, initial_genome
+
+    rng = np.random.default_rng(8)
+    tracker = InnovationTracker()
+    start = initial_genome(LAYOUT, tracker, rng, "modulated", MutationRates())
+    _add_node(start, tracker, rng, modulatory=True)
+    for c in start.connections.values():
+        c.plastic = True
+    pop = Population(_config(), LAYOUT, "modulated", seed=9, start=start)
+    assert pop.genomes[0] == start and len(pop.genomes) == 40
+    assert pop.tracker.next_innovation > max(start.connections)
+    fixed = Population(_config(), LAYOUT, "fixed", seed=9, start=start)
+    assert not any(n.modulatory for g in fixed.genomes for n in g.nodes.values())
+    assert not any(c.plastic for g in fixed.genomes for c in g.connections.values())

@@ -6,6 +6,8 @@ A run directory (format in :mod:`neurodrome.evolve.rundir`) holds, after every g
   best_so_far, and extras: threshold, archive size, mean network size, evaluation seed);
 - ``best.net.json``: the best genome so far as a network file that ``neurodrome evaluate``,
   ``watch`` and ``record`` accept;
+- ``champion.genome.json``: the same champion as a genome (format ``neurodrome-genome``),
+  which a later run can start from (configuration field ``start_genome``);
 - ``checkpoint.json``: the whole population with the random generator's state, written
   atomically after the log line. ``--resume`` drops log lines past the checkpoint (a kill
   between the two writes) and continues; the rest of the run is bit-identical to an
