@@ -125,3 +125,34 @@ def test_trials_override_and_step_count():
     result = Batch(world, couriers(world, "same-arm"), seed=0, trials=2).run()[0]
     assert len(result.trials) == 2
     assert result.steps == sum(t.steps for t in result.trials)
+
+
+def test_trial_after_a_crash_starts_exactly_at_home():
+    """A robot that crashed restarts with no trace of the contact: the first steps of
+    every trial of a constant controller are bit-identical to those of trial 1."""
+    world = template_world("junction", trials=3, physics=FAST)
+
+    class Straight:
+        n_agents = 1
+
+        def reset_lifetime(self, seeds):
+            pass
+
+        def reset_trial(self, mask):
+            pass
+
+        def act(self, obs):
+            return np.array([[1.0, 0.97]])  # slightly curving: it hits the stem's wall
+
+    batch = Batch(world, [Straight()], seed=0)
+    starts, previous = {}, None
+    while not batch.done:
+        trial = int(batch.trial[0])
+        batch.step()
+        if trial != previous:
+            starts[trial] = (batch.positions[0].copy(), float(batch.angles[0]))
+            previous = trial
+    result = batch.results()[0]
+    assert all(t.crashed for t in result.trials)
+    for k in (2, 3):
+        assert np.array_equal(starts[k][0], starts[1][0]) and starts[k][1] == starts[1][1]

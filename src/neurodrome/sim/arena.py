@@ -97,36 +97,78 @@ class Arena:
                 seg.friction = 0.3
                 seg.elasticity = 0.0
                 wall_shapes.append(seg)
+        self._robot_filter = robot_filter
         self.bodies: list[pymunk.Body] = []
-        shapes = []
+        self.shapes: list[pymunk.Circle] = []
+        self._shape_agent: dict[int, int] = {}
         for k in range(n):
-            body = pymunk.Body(self.mass, self.moment)
-            body.position = tuple(self.origins[k])
-            circle = pymunk.Circle(body, self.radius)
-            circle.filter = robot_filter
-            circle.collision_type = ROBOT_TYPE
-            circle.friction = 0.3
-            circle.elasticity = 0.0
-            self.bodies.append(body)
-            shapes += [body, circle]
-        space.add(*wall_shapes, *shapes)
-        self._shape_agent = {id(s): k for k, s in enumerate(shapes[1::2])}
+            self._new_robot(k, tuple(self.origins[k]))
+        space.add(*wall_shapes, *[x for k in range(n) for x in (self.bodies[k], self.shapes[k])])
         self.touching = np.zeros(n, dtype=np.int64)
         self.contact_begun = np.zeros(n, dtype=bool)
         space.on_collision(ROBOT_TYPE, WALL_TYPE, begin=self._begin, separate=self._separate)
 
         self._buf = pb.Buffer()
-        pb.get_space_bodies(space, pb.BodyFields.BODY_ID, self._buf)
+        self._wbuf = pb.Buffer()
+        self.live = np.ones(n, dtype=bool)
+        self.state = np.zeros((n, 6))  # x, y, angle, vx, vy, w in global coordinates
+        self._remap()
+        self.read()
+
+    def _new_robot(self, k: int, position: tuple[float, float]) -> None:
+        """A fresh body and shape for agent k (not yet added to the space)."""
+        body = pymunk.Body(self.mass, self.moment)
+        body.position = position
+        circle = pymunk.Circle(body, self.radius)
+        circle.filter = self._robot_filter
+        circle.collision_type = ROBOT_TYPE
+        circle.friction = 0.3
+        circle.elasticity = 0.0
+        if k < len(self.bodies):
+            self._shape_agent.pop(id(self.shapes[k]), None)
+            self.bodies[k], self.shapes[k] = body, circle
+        else:
+            self.bodies.append(body)
+            self.shapes.append(circle)
+        self._shape_agent[id(circle)] = k
+
+    def _remap(self) -> None:
+        """Map live agents to their rows in pymunk's body order (found by BODY_ID); the
+        write buffer covers every row, the static body's included."""
+        self._buf.clear()
+        pb.get_space_bodies(self.space, pb.BodyFields.BODY_ID, self._buf)
         ids = np.frombuffer(self._buf.int_buf(), dtype=np.uintp).copy()
         self._buf.clear()
-        row_of = {int(b): r for r, b in enumerate(ids)}
-        self._rows = np.array([row_of[b.id] for b in self.bodies], dtype=np.intp)
+        self._live_idx = np.flatnonzero(self.live)
+        order = np.argsort(ids, kind="stable")
+        wanted = np.array([self.bodies[k].id for k in self._live_idx.tolist()], dtype=np.uintp)
+        self._rows = order[np.searchsorted(ids[order], wanted)].astype(np.intp)
         self._nrows = len(ids)
         self._write = np.zeros((self._nrows, 3), dtype=np.float64)
-        self._wbuf = pb.Buffer()
         self._wbuf.set_float_buf(self._write.reshape(-1))
-        self.state = np.zeros((n, 6))  # x, y, angle, vx, vy, w in global coordinates
-        self.read()
+
+    def retire(self, agents: np.ndarray) -> None:
+        """Take finished agents out of the physics: their bodies leave the space and their
+        state stays frozen. The others are unaffected (they never interact)."""
+        agents = [k for k in np.asarray(agents).tolist() if self.live[k]]
+        if not agents:
+            return
+        for k in agents:
+            self.space.remove(self.bodies[k], self.shapes[k])
+            self.live[k] = False
+            self.touching[k] = 0
+        self._remap()
+
+    def revive(self) -> None:
+        """Bring every retired agent back into the physics (for a fresh evaluation)."""
+        dead = np.flatnonzero(~self.live).tolist()
+        if not dead:
+            return
+        for k in dead:  # fresh bodies: a retired body may hold a contact's position correction
+            self._new_robot(k, tuple(self.origins[k]))
+        self.space.add(*[x for k in dead for x in (self.bodies[k], self.shapes[k])])
+        self.live[:] = True
+        self._remap()
 
     # -- contacts (called by pymunk only when a contact begins or ends) ---------------
     def _agent_of(self, arbiter: pymunk.Arbiter) -> int:
@@ -148,7 +190,7 @@ class Arena:
         self._buf.clear()
         pb.get_space_bodies(self.space, _READ, self._buf)
         raw = np.frombuffer(self._buf.float_buf(), dtype=np.float64).reshape(self._nrows, 6)
-        np.take(raw, self._rows, axis=0, out=self.state)
+        self.state[self._live_idx] = raw[self._rows]
         return self.state
 
     @property
@@ -166,19 +208,34 @@ class Arena:
         Each substep sets force and torque that bring the body to the exact-arc velocity of
         the commanded wheels over the following step (see :func:`_drive_kernel`).
         """
-        v_l = wheels[:, 0] * max_speed
-        v_r = wheels[:, 1] * max_speed
+        live = self._live_idx
+        if not len(live):
+            return
+        v_l = wheels[live, 0] * max_speed
+        v_r = wheels[live, 1] * max_speed
         v = 0.5 * (v_l + v_r)
         omega = (v_r - v_l) / wheel_base
         for _ in range(self.substeps):
-            _drive_kernel(self.state, self._rows, v, omega, self.dt, self.mass, self.moment, self._write)
+            _drive_kernel(self.state[live], self._rows, v, omega, self.dt, self.mass, self.moment, self._write)
             pb.set_space_bodies(self.space, _WRITE, self._wbuf)
             self.space.step(self.dt)
             self.read()
 
     def place(self, agents: np.ndarray, positions: np.ndarray, angles: np.ndarray) -> None:
-        """Put the given agents at rest at local ``positions`` (K, 2), ``angles`` (K,)."""
+        """Put the given agents at rest at local ``positions`` (K, 2), ``angles`` (K,).
+
+        A robot that touched a wall in the last step gets a fresh body: pymunk keeps a
+        contact's position correction (a bias velocity it applies in the next step) inside
+        the body, where no setter reaches it, and it would nudge the robot off its start.
+        """
+        replaced = False
         for k, (x, y), a in zip(agents.tolist(), positions.tolist(), angles.tolist()):
+            if self.live[k] and (self.touching[k] > 0 or self.contact_begun[k]):
+                self.space.remove(self.bodies[k], self.shapes[k])
+                self._new_robot(k, tuple(self.origins[k]))
+                self.space.add(self.bodies[k], self.shapes[k])
+                self.touching[k] = 0
+                replaced = True
             body = self.bodies[k]
             body.position = (self.origins[k, 0] + x, self.origins[k, 1] + y)
             body.angle = a
@@ -187,6 +244,8 @@ class Arena:
             body.force = (0.0, 0.0)
             body.torque = 0.0
             self.space.reindex_shapes_for_body(body)
+        if replaced:
+            self._remap()
         self.read()
 
 

@@ -106,6 +106,7 @@ class Batch:
 
     def reset(self) -> None:
         """Start the evaluation over: lifetime reset of every controller, trial 1 for all."""
+        self.arena.revive()
         n, s = self.n, len(self.site_names)
         ids = self.agent_ids.tolist()
         self._rngs = [agent_generator(self.seed, a) for a in ids]
@@ -195,7 +196,12 @@ class Batch:
         """(N, C) observations for the current state; see :class:`Layout` for channels."""
         pos = self.positions
         heading = self.angles.copy()
-        dist = cast_rays(self.grid, pos, heading, self.ray_angles, self.reach)
+        live = self.arena.live
+        if live.all():
+            dist = cast_rays(self.grid, pos, heading, self.ray_angles, self.reach)
+        else:  # finished agents keep their last readings
+            dist = self.ray_distances.copy()
+            dist[live] = cast_rays(self.grid, pos[live], heading[live], self.ray_angles, self.reach)
         self._ray_origin, self._ray_heading, self.ray_distances = pos, heading, dist
         rf = self.spec.robot.range_finders
         prox = proximity(dist, self.spec.robot.radius, rf.max_range)
@@ -237,6 +243,9 @@ class Batch:
         self.steps_in_trial += active
         self.reward_timer = np.maximum(self.reward_timer - 1, 0)
         self._score(active)
+        finished = (self.phase == Phase.FINISHED) & self.arena.live
+        if finished.any():
+            self.arena.retire(np.flatnonzero(finished))
         self.obs = self.observe()
         return self.events
 
