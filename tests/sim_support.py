@@ -28,6 +28,24 @@ def template_world(kind: str = "junction", *, physics=None, scoring=None, robot=
     return world_from_data(data, f"<{kind} template>")
 
 
+class Constant:
+    """Test controller: the same wheel commands every step."""
+
+    n_agents = 1
+
+    def __init__(self, left: float, right: float) -> None:
+        self.wheels = np.array([[left, right]])
+
+    def reset_lifetime(self, seeds):
+        pass
+
+    def reset_trial(self, mask):
+        pass
+
+    def act(self, obs):
+        return self.wheels
+
+
 class Jitterbug:
     """Test controller: wheel commands drawn from each agent's own seed and a step count,
     switching between full-speed runs, spins and reversals; vectorised and combinable."""

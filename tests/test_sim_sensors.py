@@ -15,7 +15,7 @@ from neurodrome.sim.arena import WALL_CATEGORY
 from neurodrome.sim.batch import Batch
 from neurodrome.sim.sensors import WallGrid, cast_rays, proximity, ray_directions
 from neurodrome.world import build_geometry, load_world
-from sim_support import Jitterbug, bundled_world_paths, template_world
+from sim_support import Constant, Jitterbug, bundled_world_paths, template_world
 
 WORLDS = bundled_world_paths()
 
@@ -95,19 +95,7 @@ def test_zone_signals_follow_the_robot():
     world = template_world("junction", physics={"time_step_s": 0.05})
     layout = Layout.of(world)
 
-    class Forward:
-        n_agents = 1
-
-        def reset_lifetime(self, seeds):
-            pass
-
-        def reset_trial(self, mask):
-            pass
-
-        def act(self, obs):
-            return np.array([[0.6, 0.6]])
-
-    batch = Batch(world, [Forward()], seed=0)
+    batch = Batch(world, [Constant(0.6, 0.6)], seed=0)
     obs = batch.obs[0]
     assert obs[layout.index("home")] == 1.0 and obs[layout.index("junction")] == 0.0
     assert obs[layout.index("bias")] == 1.0 and obs[layout.index("reward")] == 0.0

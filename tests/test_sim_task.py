@@ -10,7 +10,7 @@ from neurodrome.control.protocol import Layout, PerAgentAdapter
 from neurodrome.control.reference import Courier
 from neurodrome.sim.batch import Batch
 from neurodrome.sim.task import CRASHED
-from sim_support import Jitterbug, template_world
+from sim_support import Constant, Jitterbug, template_world
 
 FAST = {"time_step_s": 0.05, "control_period_s": 0.1}
 
@@ -132,19 +132,7 @@ def test_trial_after_a_crash_starts_exactly_at_home():
     every trial of a constant controller are bit-identical to those of trial 1."""
     world = template_world("junction", trials=3, physics=FAST)
 
-    class Straight:
-        n_agents = 1
-
-        def reset_lifetime(self, seeds):
-            pass
-
-        def reset_trial(self, mask):
-            pass
-
-        def act(self, obs):
-            return np.array([[1.0, 0.97]])  # slightly curving: it hits the stem's wall
-
-    batch = Batch(world, [Straight()], seed=0)
+    batch = Batch(world, [Constant(1.0, 0.97)], seed=0)  # slightly curving: it hits the stem's wall
     starts, previous = {}, None
     while not batch.done:
         trial = int(batch.trial[0])

@@ -158,6 +158,24 @@ def problems_from_validation(exc: ValidationError, source: str) -> list[Problem]
     return problems
 
 
+def check_header(data: Any, source: str, error: type[NeurodromeError], fmt: str, version: int) -> dict:
+    """The checks every file format starts with: a JSON object naming ``fmt`` and exactly
+    ``version`` (an integer), so a file of another kind or version is refused clearly."""
+    if not isinstance(data, dict):
+        raise error(Problem(f"{source} $", "a JSON object", type(data).__name__), source=source)
+    found = data.get("format")
+    if found != fmt:
+        raise error(Problem(f"{source} $.format", f"\"{fmt}\"", repr(found) if found is not None else "no format field"), source=source)
+    found = data.get("version")
+    if type(found) is not int or found != version:
+        raise error(
+            Problem(f"{source} $.version", f"version {version} (the version this neurodrome reads)",
+                    repr(found) if found is not None else "no version field"),
+            source=source,
+        )
+    return data
+
+
 def validate(model: type[M], data: Any, source: str, error: type[NeurodromeError]) -> M:
     try:
         return model.model_validate(data)

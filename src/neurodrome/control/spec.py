@@ -19,7 +19,7 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, field_validator
 
 from ..errors import ControllerFileError, Problem
-from ..jsonio import dump_json, read_json_file, validate, write_atomic
+from ..jsonio import check_header, dump_json, read_json_file, validate, write_atomic
 
 NETWORK_FORMAT = "neurodrome-network"
 NETWORK_VERSION = 1
@@ -240,21 +240,7 @@ def _name_items(problems: list[Problem], data: dict) -> list[Problem]:
 
 def network_from_data(data: Any, source: str = "<network>") -> NetworkSpec:
     """Validate parsed JSON data (or a dict built in memory) as a network."""
-    if not isinstance(data, dict):
-        raise ControllerFileError(Problem(f"{source} $", "a JSON object", type(data).__name__), source=source)
-    fmt = data.get("format")
-    if fmt != NETWORK_FORMAT:
-        raise ControllerFileError(
-            Problem(f"{source} $.format", f"\"{NETWORK_FORMAT}\"", repr(fmt) if fmt is not None else "no format field"),
-            source=source,
-        )
-    version = data.get("version")
-    if version != NETWORK_VERSION:
-        raise ControllerFileError(
-            Problem(f"{source} $.version", f"version {NETWORK_VERSION} (the version this neurodrome reads)",
-                    repr(version) if version is not None else "no version field"),
-            source=source,
-        )
+    check_header(data, source, ControllerFileError, NETWORK_FORMAT, NETWORK_VERSION)
     try:
         spec = validate(NetworkSpec, data, source, ControllerFileError)
     except ControllerFileError as exc:

@@ -5,31 +5,14 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
-from ..errors import Problem, WorldFileError
-from ..jsonio import dump_json, read_json_file, validate, write_atomic
+from ..errors import WorldFileError
+from ..jsonio import check_header, dump_json, read_json_file, validate, write_atomic
 from .spec import WORLD_FORMAT, WORLD_VERSION, WorldSpec
 
 
 def world_from_data(data: Any, source: str = "<world>") -> WorldSpec:
     """Validate already-parsed JSON data as a world; checks format and version first."""
-    if not isinstance(data, dict):
-        raise WorldFileError(Problem(f"{source} $", "a JSON object", type(data).__name__), source=source)
-    fmt = data.get("format")
-    if fmt != WORLD_FORMAT:
-        raise WorldFileError(
-            Problem(f"{source} $.format", f"\"{WORLD_FORMAT}\"", repr(fmt) if fmt is not None else "no format field"),
-            source=source,
-        )
-    version = data.get("version")
-    if type(version) is not int or version != WORLD_VERSION:
-        raise WorldFileError(
-            Problem(
-                f"{source} $.version",
-                f"version {WORLD_VERSION} (the version this neurodrome reads)",
-                repr(version) if version is not None else "no version field",
-            ),
-            source=source,
-        )
+    check_header(data, source, WorldFileError, WORLD_FORMAT, WORLD_VERSION)
     return validate(WorldSpec, data, source, WorldFileError)
 
 
