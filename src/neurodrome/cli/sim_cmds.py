@@ -18,6 +18,10 @@ from ..sim.task import AgentResult
 from ..world import load_world
 
 
+#: With at least this many controllers and no --workers, evaluate uses all cores.
+AUTO_POOL_MIN = 32
+
+
 def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("agents", help="list the bundled scripted agents", description="List the bundled scripted agents.")
     p.set_defaults(func=cmd_agents)
@@ -37,7 +41,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("controllers", nargs="+", metavar="CONTROLLER")
     p.add_argument("--seed", type=int, default=0, help="evaluation seed (default 0)")
     p.add_argument("--trials", type=int, help="override the world's number of trials")
-    p.add_argument("--workers", type=int, default=1, help="local worker processes (default 1: in this process; 0: all cores)")
+    p.add_argument("--workers", type=int, default=None,
+                   help=f"local worker processes (1: in this process; 0: all cores; default: in this process for "
+                        f"fewer than {AUTO_POOL_MIN} controllers, else all cores)")
     p.add_argument("--scheduler", metavar="ADDRESS", help="Dask scheduler address, e.g. tcp://10.0.0.5:8786 (needs neurodrome[cluster])")
     p.add_argument("--json", action="store_true", help="one JSON object per controller on stdout (JSON Lines)")
     p.add_argument("--replay", metavar="FILE", help="also write a replay (.npz) of chosen agents for watch and record")
@@ -135,9 +141,9 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
         raise NeurodromeError(Problem("--trials", "a whole number of trials >= 1", str(args.trials)))
     if args.seed < 0:
         raise NeurodromeError(Problem("--seed", "a whole number >= 0", str(args.seed)))
-    if args.workers < 0:
+    if args.workers is not None and args.workers < 0:
         raise NeurodromeError(Problem("--workers", "1 or more worker processes (0: all cores)", str(args.workers)))
-    if args.scheduler and args.workers != 1:
+    if args.scheduler and args.workers not in (None, 1):
         raise NeurodromeError(Problem("--workers", "no --workers with --scheduler (the cluster's workers run the chunks)", str(args.workers)))
     from_stdin = args.controllers == ["-"]
     if "-" in args.controllers and not from_stdin:
@@ -150,13 +156,16 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
         sources = list(args.controllers)
     chosen = _parse_indices(args.replay_agents, len(sources)) if args.replay else []
     run = [k for k, s in enumerate(sources) if s is not None]
+    workers = args.workers
+    if workers is None:  # starting worker processes costs seconds: only worth it for a population
+        workers = 1 if len(run) < AUTO_POOL_MIN or args.scheduler else 0
     progress = Progress(sys.stderr, not args.no_progress)
     results = evaluate(
         world,
         [sources[k] for k in run],
         seed=args.seed,
         trials=args.trials,
-        workers=args.workers,
+        workers=workers,
         executor=args.scheduler or None,
         agent_ids=run,
         progress=progress,
