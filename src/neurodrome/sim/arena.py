@@ -103,6 +103,7 @@ class Arena:
         self._shape_agent: dict[int, int] = {}
         for k in range(n):
             self._new_robot(k, tuple(self.origins[k]))
+        self._body_ids = np.array([b.id for b in self.bodies], dtype=np.uintp)
         space.add(*wall_shapes, *[x for k in range(n) for x in (self.bodies[k], self.shapes[k])])
         self.touching = np.zeros(n, dtype=np.int64)
         self.contact_begun = np.zeros(n, dtype=bool)
@@ -116,7 +117,7 @@ class Arena:
         self.read()
 
     def _new_robot(self, k: int, position: tuple[float, float]) -> None:
-        """A fresh body and shape for agent k (not yet added to the space)."""
+        """Agent k's body and shape (not yet added to the space)."""
         body = pymunk.Body(self.mass, self.moment)
         body.position = position
         circle = pymunk.Circle(body, self.radius)
@@ -124,12 +125,8 @@ class Arena:
         circle.collision_type = ROBOT_TYPE
         circle.friction = 0.3
         circle.elasticity = 0.0
-        if k < len(self.bodies):
-            self._shape_agent.pop(id(self.shapes[k]), None)
-            self.bodies[k], self.shapes[k] = body, circle
-        else:
-            self.bodies.append(body)
-            self.shapes.append(circle)
+        self.bodies.append(body)
+        self.shapes.append(circle)
         self._shape_agent[id(circle)] = k
 
     def _remap(self) -> None:
@@ -141,7 +138,7 @@ class Arena:
         self._buf.clear()
         self._live_idx = np.flatnonzero(self.live)
         order = np.argsort(ids, kind="stable")
-        wanted = np.array([self.bodies[k].id for k in self._live_idx.tolist()], dtype=np.uintp)
+        wanted = self._body_ids[self._live_idx]
         self._rows = order[np.searchsorted(ids[order], wanted)].astype(np.intp)
         self._nrows = len(ids)
         self._write = np.zeros((self._nrows, 3), dtype=np.float64)
@@ -164,8 +161,8 @@ class Arena:
         dead = np.flatnonzero(~self.live).tolist()
         if not dead:
             return
-        for k in dead:  # fresh bodies: a retired body may hold a contact's position correction
-            self._new_robot(k, tuple(self.origins[k]))
+        for k in dead:  # a retired body may still hold a contact's position correction
+            pymunk.Body.update_position(self.bodies[k], 0.0)
         self.space.add(*[x for k in dead for x in (self.bodies[k], self.shapes[k])])
         self.live[:] = True
         self._remap()
@@ -222,30 +219,29 @@ class Arena:
             self.read()
 
     def place(self, agents: np.ndarray, positions: np.ndarray, angles: np.ndarray) -> None:
-        """Put the given agents at rest at local ``positions`` (K, 2), ``angles`` (K,).
+        """Put the given live agents at rest at local ``positions`` (K, 2), ``angles`` (K,),
+        in one bulk write.
 
-        A robot that touched a wall in the last step gets a fresh body: pymunk keeps a
-        contact's position correction (a bias velocity it applies in the next step) inside
-        the body, where no setter reaches it, and it would nudge the robot off its start.
+        pymunk keeps a contact's position correction (a bias velocity applied in the next
+        step) inside the body, where no setter reaches it; it would nudge a robot that
+        touched a wall off its start. pymunk's own position update with a zero time step
+        moves nothing and clears that correction.
         """
-        replaced = False
-        for k, (x, y), a in zip(agents.tolist(), positions.tolist(), angles.tolist()):
-            if self.live[k] and (self.touching[k] > 0 or self.contact_begun[k]):
-                self.space.remove(self.bodies[k], self.shapes[k])
-                self._new_robot(k, tuple(self.origins[k]))
-                self.space.add(self.bodies[k], self.shapes[k])
-                self.touching[k] = 0
-                replaced = True
-            body = self.bodies[k]
-            body.position = (self.origins[k, 0] + x, self.origins[k, 1] + y)
-            body.angle = a
-            body.velocity = (0.0, 0.0)
-            body.angular_velocity = 0.0
-            body.force = (0.0, 0.0)
-            body.torque = 0.0
-            self.space.reindex_shapes_for_body(body)
-        if replaced:
-            self._remap()
+        agents = np.asarray(agents, dtype=np.intp)
+        for k in agents[(self.touching[agents] > 0) | self.contact_begun[agents]].tolist():
+            pymunk.Body.update_position(self.bodies[k], 0.0)
+        self._buf.clear()
+        pb.get_space_bodies(self.space, _READ, self._buf)
+        raw = np.frombuffer(self._buf.float_buf(), dtype=np.float64).reshape(self._nrows, 6).copy()
+        slot = np.full(len(self.live), -1, dtype=np.intp)
+        slot[self._live_idx] = self._rows
+        rows = slot[agents]
+        raw[rows, 0:2] = self.origins[agents] + positions
+        raw[rows, 2] = angles
+        raw[rows, 3:6] = 0.0
+        buffer = pb.Buffer()
+        buffer.set_float_buf(raw.reshape(-1))
+        pb.set_space_bodies(self.space, _READ, buffer)
         self.read()
 
 

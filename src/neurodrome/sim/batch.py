@@ -335,38 +335,44 @@ class Batch:
             self._end_trials(ended, crash_end, timeout)
 
     def _end_trials(self, ended: np.ndarray, crashed: np.ndarray, timeout: np.ndarray) -> None:
-        pos = self.positions
-        dt = self.control_period
-        scoring = self.spec.task.scoring
+        who = np.flatnonzero(ended)
+        pos = self.positions[who]
+        unfinished = timeout[who] & ((self.phase[who] == Phase.OUTBOUND) | (self.phase[who] == Phase.HOMING))
+        site = self.site_reached[who]
+        outcome = np.where(site >= 0, site, np.where(crashed[who], CRASHED, NO_SITE))
+        returned = self.returned[who] & self.spec.task.scoring.return_home
+        steps = self.steps_in_trial[who]
+        columns = zip(
+            who.tolist(), self.trial[who].tolist(), site.tolist(), outcome.tolist(), self.collected[who].tolist(),
+            self.crashes[who].tolist(), returned.tolist(), unfinished.tolist(), steps.tolist(),
+            np.round(steps * self.control_period, 9).tolist(), self.trial_score[who].tolist(), pos.tolist(),
+        )
         starting = np.zeros(self.n, dtype=bool)
-        for k in np.flatnonzero(ended).tolist():
-            trial = int(self.trial[k])
-            site = int(self.site_reached[k])
-            outcome = site if site >= 0 else (CRASHED if crashed[k] else NO_SITE)
-            unfinished = bool(timeout[k]) and self.phase[k] in (Phase.OUTBOUND, Phase.HOMING)
+        for k, trial, site_k, outcome_k, value, crashes, home, late, n_steps, time_s, score, end in columns:
             record = TrialRecord(
                 trial=trial,
-                site=self.site_names[site] if site >= 0 else None,
-                value=float(self.collected[k]),
-                crashed=bool(self.crashes[k] > 0),
-                crashes=int(self.crashes[k]),
-                returned_home=bool(self.returned[k]) if scoring.return_home else False,
-                timed_out=unfinished,
-                steps=int(self.steps_in_trial[k]),
-                time_s=round(int(self.steps_in_trial[k]) * dt, 9),
-                score=float(self.trial_score[k]),
-                end_position=(float(pos[k, 0]), float(pos[k, 1])),
-                outcome=outcome,
+                site=self.site_names[site_k] if site_k >= 0 else None,
+                value=value,
+                crashed=crashes > 0,
+                crashes=crashes,
+                returned_home=home,
+                timed_out=late,
+                steps=n_steps,
+                time_s=time_s,
+                score=score,
+                end_position=(end[0], end[1]),
+                outcome=outcome_k,
             )
             self.records[k].append(record)
-            self.events.append(Event(k, "trial-end", trial, {"outcome": outcome, "score": record.score}))
-            self._relocate(k, trial)
+            self.events.append(Event(k, "trial-end", trial, {"outcome": outcome_k, "score": score}))
+            if self._schedules[k]:
+                self._relocate(k, trial)
             if trial >= self.n_trials:
                 self.phase[k] = Phase.FINISHED
                 self.events.append(Event(k, "finished", trial, {"fitness": float(self.fitness[k])}))
                 continue
-            self.trial[k] = trial + 1
             starting[k] = True
+        self.trial[starting] += 1
         if starting.any():
             self.phase[starting] = Phase.OUTBOUND
             for name in ("steps_in_trial", "crashes", "reward_timer", "settle_timer"):
