@@ -44,7 +44,8 @@ def commands() -> list[str]:
         text = block.replace("\\\n", " ")
         for line in text.splitlines():
             line = line.strip()
-            if line.startswith("neurodrome ") and not any(s in line for s in SKIP):
+            synopsis = "[" in line or "..." in line  # a usage line, not an example
+            if line.startswith("neurodrome ") and not synopsis and not any(s in line for s in SKIP):
                 out.append(line)
     return out
 
