@@ -21,8 +21,14 @@ def hammer(path, agents_per_mode: int, steps: int) -> int:
     world = world.model_copy(update={"task": task})
     controllers = [Jitterbug(agents_per_mode, mode) for mode in MODES]
     batch = Batch(world, controllers, seed=77)
-    # "most of its radius": the centre stays at least 0.8 r from every wall (shapely check)
-    allowed = batch.geometry.free.buffer(-0.8 * world.robot.radius)
+    # Contacts are found after the physics step that makes them (pymunk has no continuous
+    # collision detection), so a robot at full speed can sink up to v_max * dt into a wall
+    # before the solver pushes it out: the centre must stay at least r - v_max dt - 1 mm
+    # from every wall (0.74 r in the bundled worlds: most of the radius). Shapely checks it.
+    robot = world.robot
+    keep = robot.radius - robot.max_wheel_speed * world.physics.time_step_s - 1e-3
+    assert keep > 0.5 * robot.radius
+    allowed = batch.geometry.free.buffer(-keep)
     simulated = 0
     for _ in range(steps):
         batch.step()
@@ -37,7 +43,8 @@ def hammer(path, agents_per_mode: int, steps: int) -> int:
 @pytest.mark.parametrize("path", WORLDS, ids=[p.stem for p in WORLDS])
 def test_adversarial_controls_stay_inside_quick(path):
     """Random, full-speed-into-walls, spinning and alternating controls (64 agents, 300
-    steps) never put a robot centre outside the free space eroded by 0.8 r, no NaN."""
+    steps) never put a robot centre deeper than one physics step's travel into a wall's
+    clearance (see hammer), and nothing becomes NaN."""
     assert hammer(path, 16, 300) > 0
 
 
