@@ -60,8 +60,6 @@ def _same_arm_plateau(result, world_path: Path) -> float:
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(strict=True, reason="open: the shipped restock champion sits on the always-east plateau; "
-                                       "no evolved learner yet (see assets/evolve-restock.json)")
 @pytest.mark.parametrize("seed", [1, 2, 3])
 def test_restock_champion_beats_the_same_arm_plateau(seed):
     """On the bundled 100-trial relocating junction the champion beats always-west and always-east alike."""
@@ -92,3 +90,56 @@ def load_network_data(data: dict):
     from neurodrome.control.spec import network_from_data
 
     return network_from_data(data)
+
+
+def _scaffold_builder():
+    """assets/build_restock_scaffold.py imported by path (it is a script, not a package module)."""
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location("build_restock_scaffold", ASSETS / "build_restock_scaffold.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
+def test_restock_scaffold_genome_is_the_builders_output():
+    """The shipped scaffold genome is exactly what assets/build_restock_scaffold.py builds."""
+    layout = GenomeLayout.from_channels(load_world(RESTOCK).observation_channels())
+    shipped = load_genome(ASSETS / "restock-scaffold.genome.json", layout)
+    assert shipped.state() == _scaffold_builder().build().state()
+
+
+def _plastic_weight_after(rewards: list[float], start_sign: float) -> float:
+    """The champion's one plastic weight after feeding ``rewards`` (one a control step) on an
+    otherwise empty observation, the weight first set to +-its initial size."""
+    import numpy as np
+
+    from neurodrome.control.network import NetworkController
+    from neurodrome.control.protocol import Layout
+    from neurodrome.control.spec import network_to_data
+
+    spec = load_network(ASSETS / "champion-restock.net.json")
+    (plastic,) = [c for c in spec.connections if c.plastic]
+    layout = Layout.of(load_world(RESTOCK))
+    data = network_to_data(spec)
+    for c in data["connections"]:
+        if c["plastic"]:
+            c["weight"] = start_sign * abs(c["weight"])
+    ctrl = NetworkController([load_network_data(data)], layout)
+    ids = ctrl.neuron_ids[0]
+    j, i = ids.index(plastic.source), ids.index(plastic.target)
+    obs = np.zeros((1, layout.size))
+    obs[0, layout.index("bias")] = 1.0
+    for r in rewards + [0.0] * 3:
+        obs[0, layout.index("reward")] = r
+        ctrl.act(obs)
+    return float(ctrl.state()["weights"][0, j, i])
+
+
+@pytest.mark.parametrize("sign", [1.0, -1.0])
+def test_restock_champion_low_reward_flips_and_high_reward_keeps_its_preference(sign):
+    """Five steps of the low store value flip the plastic preference weight's sign (lose-shift);
+    five of the high value keep it (win-stay): the sequence a collected reward shows (held 5 steps)."""
+    assert _plastic_weight_after([0.2] * 5, sign) * sign < -1.0
+    assert _plastic_weight_after([1.0] * 5, sign) * sign > 1.0
+    assert _plastic_weight_after([0.0] * 5, sign) * sign > 1.0
