@@ -30,7 +30,7 @@ from .arena import MAX_AGENTS, Arena
 from .seeding import CONTROLLER_STREAM, agent_generator, agent_key
 from .sensors import WallGrid, Zones, cast_rays, proximity, ray_directions
 from .seeding import normals
-from .task import CRASHED, NO_SITE, AgentResult, Phase, RelocationRecord, TrialRecord, apply_event, draw_schedule
+from .task import CRASHED, NO_SITE, AgentResult, Phase, RelocationRecord, TrialRecord, draw_schedule
 
 _SENSOR_SALT = 1
 _MOTOR_SALT = 2
@@ -391,16 +391,12 @@ class Batch:
         schedule = self._schedules[k]
         while schedule and schedule[0][0] == trial:
             _, index = schedule.pop(0)
-            before = self.site_values[k].copy()
-            moved, after = apply_event(self.spec, index, before, self.site_names)
-            self.site_values[k] = after
-            rec = RelocationRecord(
-                after_trial=trial,
-                action=self.spec.task.relocations[index].action,
-                sites=moved,
-                before=dict(zip(self.site_names, before.tolist())),
-                after=dict(zip(self.site_names, after.tolist())),
-            )
+            event = self.spec.task.relocations[index]
+            before = dict(zip(self.site_names, self.site_values[k].tolist()))
+            after = event.apply(before)
+            self.site_values[k] = [after[name] for name in self.site_names]
+            moved = event.named_sites()
+            rec = RelocationRecord(after_trial=trial, action=event.action, sites=moved, before=before, after=after)
             self.relocation_log[k].append(rec)
             self.events.append(Event(k, "relocation", trial, {"sites": moved, "after": rec.after}))
         # events scheduled after a trial that already passed (a schedule past the trial

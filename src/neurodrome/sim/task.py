@@ -96,16 +96,3 @@ def draw_schedule(spec: WorldSpec, rng: np.random.Generator) -> list[tuple[int, 
         out.append((trial, k))
     out.sort()
     return out
-
-
-def apply_event(spec: WorldSpec, index: int, values: np.ndarray, names: list[str]) -> tuple[list[str], np.ndarray]:
-    """New site values (S,) after event ``index``; swaps rotate values along the list."""
-    ev = spec.task.relocations[index]
-    new = values.copy()
-    if ev.action == "swap":
-        idx = [names.index(s) for s in ev.sites]
-        new[idx] = values[np.roll(idx, 1)]
-        return list(ev.sites), new
-    for s, v in ev.values.items():
-        new[names.index(s)] = v
-    return list(ev.values), new
