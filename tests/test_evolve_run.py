@@ -141,3 +141,16 @@ def test_repeated_runs_feed_the_report(tmp_path):
     assert set(report.treatments) == {"modulated", "fixed"}
     assert report.generations == 2 and len(report.comparisons) >= 1
     assert (tmp_path / "report" / "summary.md").is_file()
+
+
+def test_repeats_average_lifetimes_with_their_own_draws(tmp_path):
+    """With evaluation.repeats = 2 a genome's fitness is the mean of two lifetimes, agent
+    ids 0 and 1 of the generation's seed; checked against the evaluator run directly."""
+    world = str(ROOT / "assets" / "clinic-junction-restock-short.json")
+    config = _config(tmp_path, generations=1, evaluation={"trials": 8, "repeats": 2})
+    out = tmp_path / "run"
+    assert main(["evolve", world, "--config", config, "-o", str(out), "--quiet"]) == 0
+    (line,) = [json.loads(x) for x in (out / "log.jsonl").read_text().splitlines()]
+    champion = str(out / "best.net.json")
+    lives = evaluate(world, [champion, champion], trials=8, seed=line["eval_seed"], agent_ids=[0, 1])
+    assert line["best"] == pytest.approx((lives[0].fitness + lives[1].fitness) / 2, abs=1e-12)

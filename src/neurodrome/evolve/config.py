@@ -31,6 +31,10 @@ class EvaluationConfig(_Section):
     same_schedule: StrictBool = Field(
         True, description="every individual of a generation meets the same random draws (relocation trial), "
                           "so fitness differences come from the controllers alone")
+    repeats: StrictInt = Field(
+        1, ge=1, le=100, description="lifetimes per genome, each with its own random draws (relocation trial); "
+                                     "fitness is their mean and the behaviour descriptor their concatenation, "
+                                     "so one lucky draw does not make a champion")
 
 
 class ObjectiveConfig(_Section):

@@ -172,15 +172,24 @@ class Run:
         gen = pop.generation
         seed = evaluation_seed(self.config, self.seed, gen)
         nets = [to_network_data(g, self.layout, name=f"{self.treatment}-g{gen}-{k}") for k, g in enumerate(pop.genomes)]
-        ids = [0] * len(nets) if self.config.evaluation.same_schedule else list(range(len(nets)))
+        n, repeats = len(nets), self.config.evaluation.repeats
+        # lifetime r of genome k is agent (r, k); its draws come from agent id r when every
+        # individual meets the same schedule, else from its own id r * n + k
+        if self.config.evaluation.same_schedule:
+            ids = [r for r in range(repeats) for _ in range(n)]
+        else:
+            ids = list(range(repeats * n))
         started = time.perf_counter()
-        results = evaluate(self.world, nets, seed=seed, trials=self.trials, executor=executor, agent_ids=ids)
+        results = evaluate(self.world, nets * repeats, seed=seed, trials=self.trials, executor=executor,
+                           agent_ids=ids)
         seconds = time.perf_counter() - started
         raw = np.array([r.fitness if r.fitness is not None else np.nan for r in results], dtype=float)
+        raw = raw.reshape(repeats, n).mean(axis=0)  # a faulted lifetime makes the genome NaN
         fitness = np.where(np.isfinite(raw), raw, np.nanmin(raw) - 1.0 if np.any(np.isfinite(raw)) else -1.0)
         behaviours = None
         if self.config.objective.kind != "fitness":
-            behaviours = behaviours_of(results, self.config.objective.behaviour, self.trials)
+            per_life = behaviours_of(results, self.config.objective.behaviour, self.trials)
+            behaviours = np.concatenate([per_life[r * n:(r + 1) * n] for r in range(repeats)], axis=1)
         scores = pop.scores(fitness, behaviours)
         top = int(np.argmax(fitness))
         if fitness[top] > self.best_so_far:
