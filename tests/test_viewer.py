@@ -284,3 +284,39 @@ def test_status_and_restock_cue_are_drawn(pg):
         assert f"{name} {value:g} -> {pb.site_value_map()[name]:g}" in banner
     rings = [c for c in canvas.named("circle") if c["fill"] is None and c["width"] == 5]
     assert len(rings) >= len(world.sites), "a pulsing ring on each store whose value moved"
+
+
+@pytest.mark.parametrize("hidden", [3, 24])
+def test_panel_labels_of_many_hidden_neurons_do_not_cover_nodes(pg, hidden):
+    """A wide hidden layer wraps into staggered sub-columns: no hidden neuron's label box
+    (drawn under the node) overlaps another hidden node's disc."""
+    from neurodrome.view.draw import PygameCanvas
+    from neurodrome.view.playback import LivePlayback
+    from neurodrome.view.show import Show
+
+    neurons = [{"id": "front", "role": "input", "channel": "range_3"}, {"id": "b", "role": "bias"},
+               {"id": "L", "role": "output", "wheel": "left"}, {"id": "R", "role": "output", "wheel": "right"}]
+    connections = [{"source": "b", "target": "R", "weight": 0.5}]
+    for k in range(hidden):
+        neurons.append({"id": f"hid-{k}", "role": "hidden"})
+        connections += [{"source": "front", "target": f"hid-{k}", "weight": 0.1},
+                        {"source": f"hid-{k}", "target": "L", "weight": 0.1}]
+    net = {"format": "neurodrome-network", "version": 1, "name": "wide", "neurons": neurons,
+           "connections": connections}
+    show = Show(LivePlayback(small_world(), net, seed=0))
+    canvas = PygameCanvas((1280, 720))
+    show.panel.draw(canvas, (850, 60, 420, 620), show.pb.net)
+    r = show.panel._radius
+    ids = show.pb.neuron_ids
+    hid = [(n, show.panel._pos[n.index]) for n in show.panel.neurons if n.column == "hidden"]
+    assert len(hid) == hidden
+    for n, (x, y) in hid:
+        w, h = canvas.text_size(n.id, 12)
+        box = (x - w / 2, y + 1.5 * r + 2, x + w / 2, y + 1.5 * r + 2 + h)
+        for m, (u, v) in hid:
+            if m is n:
+                continue
+            nearest_x = min(max(u, box[0]), box[2])
+            nearest_y = min(max(v, box[1]), box[3])
+            assert (nearest_x - u) ** 2 + (nearest_y - v) ** 2 > r * r, (n.id, m.id)
+    assert len(ids) == hidden + 4

@@ -141,14 +141,31 @@ class NetPanel:
         self._radius = max(4.0, min(11.0, 0.36 * gap))
         self._pos = {}
         self._columns = []
+        spacing = (right - left) / max(len(columns) - 1, 1)
         for ci, col in enumerate(columns):
             cx = left + (right - left) * (ci / max(len(columns) - 1, 1) if len(columns) > 1 else 0.5)
             members = [n for n in self.neurons if n.column == col]
-            span = gap * len(members)
-            y0 = top + (bottom - top - span) / 2 + gap / 2
-            for r, n in enumerate(members):
-                self._pos[n.index] = (cx, y0 + r * gap)
             self._columns.append((col, cx))
+            if col in ("input", "output"):  # labelled at the side: one row per gap
+                span = gap * len(members)
+                y0 = top + (bottom - top - span) / 2 + gap / 2
+                for r, n in enumerate(members):
+                    self._pos[n.index] = (cx, y0 + r * gap)
+                continue
+            # labelled below the node: rows need room for the label, and a long column wraps
+            # into staggered sub-columns instead of stacking labels on the next node
+            label_w = max(canvas.text_size(n.id, 12)[0] for n in members)
+            pitch = max(gap, 2.9 * self._radius + 16)
+            rows = max(1, int((bottom - top) // pitch))
+            subs = -(-len(members) // rows)
+            rows = -(-len(members) // subs)
+            pitch = min((bottom - top) / rows, 3 * pitch)
+            width = min(0.8 * spacing, (subs - 1) * (label_w + 6))
+            for r, n in enumerate(members):
+                sub, row = r % subs, r // subs
+                sx = cx + (width * (sub / (subs - 1) - 0.5) if subs > 1 else 0.0)
+                y0 = top + (bottom - top - pitch * rows) / 2 + pitch / 2
+                self._pos[n.index] = (sx, y0 + row * pitch + (pitch / 2 if subs > 1 and sub % 2 else 0.0))
 
     def _curve(self, link: Link) -> list[tuple[float, float]]:
         a, b = self._pos[link.source], self._pos[link.target]
