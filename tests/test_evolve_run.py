@@ -146,7 +146,7 @@ def test_repeated_runs_feed_the_report(tmp_path):
 def test_repeats_average_lifetimes_with_their_own_draws(tmp_path):
     """With evaluation.repeats = 2 a genome's fitness is the mean of two lifetimes, agent
     ids 0 and 1 of the generation's seed; checked against the evaluator run directly."""
-    world = str(ROOT / "assets" / "clinic-junction-restock-short.json")
+    world = str(ROOT / "assets" / "clinic-junction-restock-wider.json")
     config = _config(tmp_path, generations=1, evaluation={"trials": 8, "repeats": 2})
     out = tmp_path / "run"
     assert main(["evolve", world, "--config", config, "-o", str(out), "--quiet"]) == 0
