@@ -168,3 +168,20 @@ def test_bad_options_exit_2(capsys):
     assert "--workers" in capsys.readouterr().err
     assert main(["evaluate", str(JUNCTION), "courier-memory", "--replay", "x.npz", "--replay-agents", "4"]) == 2
     assert "--replay-agents" in capsys.readouterr().err
+
+
+def test_same_schedule_gives_every_controller_agent_0s_draws(capsys):
+    """--same-schedule: each controller meets the restock trial of agent 0, checked against
+    the evaluator run for agent 0 alone; without it agent k draws its own."""
+    from pathlib import Path
+
+    restock = str(Path(__file__).resolve().parents[1] / "worlds" / "clinic-junction-restock.json")
+    args = ["evaluate", restock, *["courier-same-arm"] * 4, "--trials", "70", "--json", "--no-progress"]
+    assert main(args + ["--same-schedule"]) == 0
+    same = _json_lines(capsys.readouterr().out)
+    assert main(args) == 0
+    own = _json_lines(capsys.readouterr().out)
+    (alone,) = evaluate(restock, ["courier-same-arm"], trials=70, agent_ids=[0])
+    expected = [r.after_trial for r in alone.relocations]
+    assert all([r["after_trial"] for r in line["relocations"]] == expected for line in same)
+    assert len({tuple(r["after_trial"] for r in line["relocations"]) for line in own}) > 1

@@ -41,6 +41,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("controllers", nargs="+", metavar="CONTROLLER")
     p.add_argument("--seed", type=int, default=0, help="evaluation seed (default 0)")
     p.add_argument("--trials", type=int, help="override the world's number of trials")
+    p.add_argument("--same-schedule", action="store_true",
+                   help="every controller meets the same random draws (restock trial) as agent 0, "
+                        "instead of agent k drawing its own")
     p.add_argument("--workers", type=int, default=None,
                    help=f"local worker processes (1: in this process; 0: all cores; default: in this process for "
                         f"fewer than {AUTO_POOL_MIN} controllers, else all cores)")
@@ -167,7 +170,7 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
         trials=args.trials,
         workers=workers,
         executor=args.scheduler or None,
-        agent_ids=run,
+        agent_ids=[0] * len(run) if args.same_schedule else run,
         progress=progress,
     ) if run else []
     by_index: dict[int, AgentResult] = dict(zip(run, results))
@@ -193,7 +196,8 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
         if not chosen:
             raise NeurodromeError(Problem("--replay-agents", "at least one controller that could be built", args.replay_agents))
         try:
-            write_replay(world, [sources[k] for k in chosen], args.replay, agent_ids=chosen, seed=args.seed, trials=args.trials)
+            ids = [0] * len(chosen) if args.same_schedule else chosen
+            write_replay(world, [sources[k] for k in chosen], args.replay, agent_ids=ids, seed=args.seed, trials=args.trials)
         except OSError as exc:
             raise NeurodromeError(Problem(f"--replay {args.replay}", "a file that can be written", str(exc))) from None
         print(f"replay of {len(chosen)} agent(s) written to {args.replay}", file=sys.stderr)
