@@ -161,10 +161,10 @@ class NetPanel:
             rows = -(-len(members) // subs)
             pitch = min((bottom - top) / rows, 3 * pitch)
             width = min(0.8 * spacing, (subs - 1) * (label_w + 6))
+            y0 = top + (bottom - top - pitch * rows) / 2 + pitch / 2
             for r, n in enumerate(members):
                 sub, row = r % subs, r // subs
                 sx = cx + (width * (sub / (subs - 1) - 0.5) if subs > 1 else 0.0)
-                y0 = top + (bottom - top - pitch * rows) / 2 + pitch / 2
                 self._pos[n.index] = (sx, y0 + row * pitch + (pitch / 2 if subs > 1 and sub % 2 else 0.0))
 
     def _curve(self, link: Link) -> list[tuple[float, float]]:
