@@ -105,6 +105,7 @@ def test_killed_process_resumes_bit_identically(tmp_path):
     ({"objective": {"kind": "novelty", "k": 0}}, "$.objective.k"),
     ({"speciation": {"target": 3}}, "$.speciation.target"),
     ({"generations": 2.5}, "$.generations"),
+    ({"evaluation": {"repeats": 0}}, "$.evaluation.repeats"),
 ])
 def test_bad_config_is_a_clear_error(tmp_path, capsys, change, field):
     """A bad configuration value names its field and exits with status 2, no traceback (project rule)."""

@@ -16,15 +16,16 @@ from hypothesis import strategies as st
 from neurodrome.control.network import NetworkController
 from neurodrome.control.protocol import Layout
 from neurodrome.control.spec import network_from_data
+from neurodrome.evolve.config import MutationConfig
 from neurodrome.evolve.genome import (
-    ConnGene, Genome, GenomeLayout, InnovationTracker, MutationRates, NodeGene, _add_connection, _add_node,
+    ConnGene, Genome, GenomeLayout, InnovationTracker, NodeGene, _add_connection, _add_node,
     crossover, distance, initial_genome, mutate, to_network_data)
 from neurodrome.world import load_world
 
 WORLD = load_world("worlds/clinic-junction.json")
 CHANNELS = WORLD.observation_channels()
 LAYOUT = GenomeLayout.from_channels(CHANNELS)
-RATES = MutationRates()
+RATES = MutationConfig().rates()
 
 
 def _fresh(treatment: str = "modulated", seed: int = 0) -> tuple[Genome, InnovationTracker, np.random.Generator]:
@@ -77,7 +78,7 @@ def test_split_disables_old_connection_and_keeps_weight():
 
 def test_modulatory_neuron_only_in_modulated_treatment():
     """Only the 'modulated' treatment grows modulatory neurons; 'fixed' has no plastic connection."""
-    rates = MutationRates(add_modulatory=1.0, add_neuron=1.0, toggle_plastic=1.0)
+    rates = MutationConfig(add_modulatory=1.0, add_neuron=1.0, toggle_plastic=1.0).rates()
     for treatment in ("modulated", "plastic", "fixed"):
         genome, tracker, rng = _fresh(treatment)
         for _ in range(30):
@@ -135,7 +136,7 @@ def test_state_round_trip_is_exact():
 
     genome, tracker, rng = _fresh()
     for _ in range(20):
-        mutate(genome, tracker, rng, MutationRates(add_neuron=0.5, add_modulatory=0.5, add_connection=0.5))
+        mutate(genome, tracker, rng, MutationConfig(add_neuron=0.5, add_modulatory=0.5, add_connection=0.5).rates())
     again = Genome.from_state(json.loads(json.dumps(genome.state())))
     assert again == genome
     assert InnovationTracker.from_state(json.loads(json.dumps(tracker.state()))) == tracker
@@ -148,8 +149,8 @@ def test_random_mutation_sequences_stay_valid(treatment, seed, steps, mates):
     """Any sequence of mutations and crossovers gives a network the validator and compiler accept."""
     rng = np.random.default_rng(seed)
     tracker = InnovationTracker()
-    rates = MutationRates(add_neuron=0.3, add_modulatory=0.3, add_connection=0.4, toggle_plastic=0.3,
-                          toggle_enabled=0.2, rule=0.8, eta_sigma=50.0, weight_sigma=5.0)
+    rates = MutationConfig(add_neuron=0.3, add_modulatory=0.3, add_connection=0.4, toggle_plastic=0.3,
+                          toggle_enabled=0.2, rule=0.8, eta_sigma=50.0, weight_sigma=5.0).rates()
     genomes = [initial_genome(LAYOUT, tracker, rng, treatment, rates) for _ in range(2)]
     for step in range(steps):
         g = genomes[step % 2]

@@ -11,7 +11,7 @@ import json
 
 import numpy as np
 
-from neurodrome.evolve.config import EvolveConfig
+from neurodrome.evolve.config import EvolveConfig, MutationConfig
 from neurodrome.evolve.genome import GenomeLayout
 from neurodrome.evolve.neat import Population, largest_remainder, ranks01
 
@@ -127,11 +127,11 @@ def test_highest_fitness_survives_novelty_selection():
 
 def test_start_genome_seeds_generation_zero():
     """Incremental start: an unchanged copy first; under 'fixed' no plastic gene and no modulatory node survive."""
-    from neurodrome.evolve.genome import InnovationTracker, MutationRates, _add_node, initial_genome
+    from neurodrome.evolve.genome import InnovationTracker, _add_node, initial_genome
 
     rng = np.random.default_rng(8)
     tracker = InnovationTracker()
-    start = initial_genome(LAYOUT, tracker, rng, "modulated", MutationRates())
+    start = initial_genome(LAYOUT, tracker, rng, "modulated", MutationConfig().rates())
     _add_node(start, tracker, rng, modulatory=True)
     for c in start.connections.values():
         c.plastic = True

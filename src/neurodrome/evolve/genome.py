@@ -85,25 +85,29 @@ class ConnGene:
 
 @dataclass
 class MutationRates:
-    """Per-offspring probabilities and step sizes of the mutation operators."""
+    """Per-offspring probabilities and step sizes of the mutation operators.
 
-    add_neuron: float = 0.03
-    add_modulatory: float = 0.03
-    add_connection: float = 0.08
-    toggle_plastic: float = 0.05
-    toggle_enabled: float = 0.01
-    weight: float = 0.8  # probability that the weights are perturbed at all
-    weight_per_gene: float = 0.3  # then each weight with this probability
-    weight_sigma: float = 0.5
-    weight_replace: float = 0.05  # a perturbed weight is drawn afresh with this probability
-    weight_range: float = 10.0
-    bias: float = 0.3
-    bias_sigma: float = 0.3
-    rule: float = 0.3
-    rule_sigma: float = 0.2
-    eta_sigma: float = 1.0
-    eta_range: float = 100.0
-    rule_range: float = 1.0
+    The values and their defaults come from :class:`~neurodrome.evolve.config.MutationConfig`
+    (``MutationConfig(...).rates()``), the one place they are defined.
+    """
+
+    add_neuron: float
+    add_modulatory: float
+    add_connection: float
+    toggle_plastic: float
+    toggle_enabled: float
+    weight: float  # probability that the weights are perturbed at all
+    weight_per_gene: float  # then each weight with this probability
+    weight_sigma: float
+    weight_replace: float  # a perturbed weight is drawn afresh with this probability
+    weight_range: float
+    bias: float
+    bias_sigma: float
+    rule: float
+    rule_sigma: float
+    eta_sigma: float
+    eta_range: float
+    rule_range: float
 
 
 @dataclass
