@@ -36,23 +36,34 @@ neurons, 0 for all others) and its current weights w.
    agrees to 1e-9.
 5. **Wheel commands.** ``left, right`` are the values of the two output neurons mapped to
    [-1, 1]: tanh_half as is; logistic 2*o - 1 (0.5 means stop); linear clipped to
-   [-1, 1]. NaN passes through unchanged: ``act`` never raises on a non-finite value, the
-   simulator stops that agent; :meth:`NetworkController.faulted` reports which agents
-   hold a non-finite value. After a fault an agent's values are not specified further.
+   [-1, 1]. If any computed neuron value or plastic weight of an agent is non-finite after
+   the step (a linear neuron overflowed, say), both its commands are NaN: ``act`` never
+   raises on a non-finite value, the simulator stops that agent, and
+   :meth:`NetworkController.faulted` reports which agents hold a non-finite value. After a
+   fault an agent's values are not specified further.
 
 ``reset_trial(mask)`` zeroes o and m of the masked agents and keeps their weights (what
 was learned carries over to the next trial); ``reset_lifetime(seeds)`` restores every
 agent's initial weights and zeroes o and m. Networks are deterministic: seeds are unused.
 
-Bit-identity
-------------
-An agent's results are bit-identical whatever batch it runs in and however much padding
-surrounds it. Matrix products (BLAS) and ``numpy.sum`` pick summation orders and kernels
-by array size, so the sums of step 2 are an explicit loop over the source index j in
-fixed order, each iteration one vectorised add of the (2, T, N) products of source j
-(T = the most hidden + output neurons of any network in the batch). Padded neurons have
-value 0 and padded weights are 0, so padding only adds exact zeros after the real terms.
-Everything else is elementwise.
+Execution and bit-identity
+--------------------------
+The step runs as two compiled kernels (numba) with one numpy call between them. The first
+sets the inputs and forms, per agent and per computed neuron, the two sums of step 2 over
+that neuron's incoming connections in ascending source order; the second applies the
+activations, the plastic rule and the writes of steps 3 to 5. Between them, ``numpy.tanh``
+maps the whole batch's x/2 and m/2 in one call: numpy's vectorised tanh differs from the C
+library's in the last bit for about a third of arguments, and it is the function the
+shipped champions were evolved with, so it is kept. numpy's tanh gives each element the
+same bits whatever the array's length or the element's place in it.
+
+Each agent's networks live in flat per-agent segments (CSR-like offsets), so an agent's
+arithmetic never depends on the batch around it: results are bit-identical alone or in any
+batch. A sum starts from +0.0 and adds only the agent's real connections; the padded
+executor this replaces added exact zeros for absent ones, which changes no bit (x + 0.0 is
+x, and a sum that starts at +0.0 never becomes -0.0), so the two agree bit for bit.
+Agents that the simulator marks inactive (finished) are skipped, so a batch's cost falls
+with its live agents.
 """
 
 from __future__ import annotations
@@ -61,6 +72,7 @@ from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
+from numba import njit
 
 from .protocol import ControllerFactory, Layout
 from .spec import ACTIVATIONS, WHEELS, NetworkSpec, check_against_layout
@@ -157,158 +169,121 @@ class NetworkController:
         self.specs = list(specs)
         self.layout = layout
         self.compiled = c = compile_networks(self.specs, layout)
-        N, n, C = c.n_agents, c.size, layout.size
+        N, n = c.n_agents, c.size
         self.n_agents = N
         self.neuron_ids = c.neuron_ids
+        self._n = n
         fed = (c.input_channel >= 0) | c.is_bias
         computed = c.is_real & ~fed
-        # Internal arrays put the agent axis last so every vectorised operation runs over
-        # contiguous memory. Only computed (hidden and output) neurons get a target slot:
-        # slot t of agent b is its t-th computed neuron in file order; padded slots and
-        # padded writes land in row n of the neuron array, a junk row no loop reads.
-        T = max(1, int(computed.sum(axis=1).max()))
-        F = max(1, int((c.input_channel >= 0).sum(axis=1).max()))
-        self._n, self._T = n, T
-        slot_neuron = np.full((T, N), n, dtype=np.int64)
+        in_off, in_neuron, in_chan = [0], [], []
+        tgt_off, tgt_agent, tgt_neuron, tgt_bias, tgt_act, tgt_mod = [0], [], [], [], [], []
+        conn_off, conn_src, conn_kind, conn_w0 = [0], [], [], []
+        p_off, p_conn, p_tgt, p_src, p_coef, p_lo, p_hi = [0], [], [], [], [], [], []
+        weights = c.w_standard + c.w_modulatory  # a connection is of one kind only
         for b in range(N):
-            ks = np.flatnonzero(computed[b])
-            slot_neuron[: len(ks), b] = ks
-        agents = np.arange(N)
-        self._slot_neuron = slot_neuron
-        self._slot_flat = slot_neuron * N + agents  # into the (n + 1, N) neuron array
-        is_input = c.input_channel >= 0
-        in_neuron = np.full((F, N), n, dtype=np.int64)
-        in_col = np.zeros((F, N), dtype=np.int64)
-        for b in range(N):
-            ks = np.flatnonzero(is_input[b])
-            in_neuron[: len(ks), b] = ks
-            in_col[: len(ks), b] = c.input_channel[b, ks]
-        self._in_dst = (in_neuron * N + agents).ravel()
-        self._in_src = (agents * C + in_col).ravel()  # into obs (N, C), row-major
-        self._in_buf = np.zeros(self._in_src.shape)
-        self._bias_rows = np.nonzero(c.is_bias.T)  # (neuron, agent) pairs set to 1
-        self._sources = [j for j in range(n) if c.connected[:, j, :].any()]
-        real_slot = slot_neuron < n
-        sl = np.minimum(slot_neuron, n - 1)
-        take = lambda a: np.where(real_slot, a[agents, sl], 0)  # noqa: E731  (N, n) -> (T, N)
-        self._bias = take(c.bias).astype(np.float64)
-        self._is_log = take(c.activation == LOGISTIC).astype(bool)
-        self._is_lin = take(c.activation == LINEAR).astype(bool)
-        self._mixed = bool(self._is_log.any() or self._is_lin.any())
-        has_mod = (c.connected & c.modulatory[:, :, None]).any(axis=1)
-        self._has_mod = take(has_mod).astype(bool)
-        self._any_mod = bool(self._has_mod.any())
-        self._no_mod = ~self._has_mod
-        # Weights: a flat buffer laid out [source j, source kind, target slot t, agent]
-        # plus one junk element for padded plastic writes.
-        w_by_kind = np.stack([c.w_standard, c.w_modulatory])  # (2, N, n, n) [kind, b, j, i]
-        w0 = np.zeros((n, 2, T, N))
-        for b in range(N):
-            ks = slot_neuron[:, b][real_slot[:, b]]
-            w0[:, :, : len(ks), b] = w_by_kind[:, b][:, :, ks].transpose(1, 0, 2)
-        self._w0 = np.concatenate([w0.ravel(), [0.0]])
-        self._buf = self._w0.copy()
-        self._w = self._buf[:-1].reshape(n, 2, T, N)
-        # Plastic connections as per-agent lists (row-major j, i order), padded.
-        P = int(c.plastic.sum(axis=(1, 2)).max())
-        self._P = P
-        slot_of = np.full((N, n), -1, dtype=np.int64)
-        for b in range(N):
-            ks = slot_neuron[:, b][real_slot[:, b]]
-            slot_of[b, ks] = np.arange(len(ks))
-        self._p_flat = np.full((P, N), self._buf.size - 1, dtype=np.int64)
-        self._p_src = np.zeros((P, N), dtype=np.int64)
-        self._p_tgt = np.zeros((P, N), dtype=np.int64)
-        self._p_rule = np.zeros((5, P, N))
-        self._p_lo = np.zeros((P, N))
-        self._p_hi = np.zeros((P, N))
-        for b in range(N):
-            js, is_ = np.nonzero(c.plastic[b])
-            k, ts = len(js), slot_of[b, is_]
-            kinds = c.modulatory[b, js].astype(np.int64)
-            self._p_flat[:k, b] = ((js * 2 + kinds) * T + ts) * N + b
-            self._p_src[:k, b] = js * N + b
-            self._p_tgt[:k, b] = ts * N + b
-            self._p_rule[:, :k, b] = c.rule[:, b, js, is_]
-            self._p_lo[:k, b], self._p_hi[:k, b] = c.bounds[0, b, js, is_], c.bounds[1, b, js, is_]
-        self._p_w0 = self._buf[self._p_flat]
-        self._p_coef = self._p_rule[0] * self._p_rule[1:]  # eta*A, eta*B, eta*C, eta*D
-        self._p_w = self._p_w0.copy()
-        self._out_flat = c.outputs.T * N + agents  # (2, N)
-        out_act = np.take_along_axis(c.activation, c.outputs, axis=1).T
+            ks = np.flatnonzero(c.input_channel[b] >= 0)
+            in_neuron += ks.tolist()
+            in_chan += c.input_channel[b, ks].tolist()
+            in_off.append(len(in_neuron))
+            for i in np.flatnonzero(computed[b]).tolist():
+                t = len(tgt_neuron)
+                js = np.flatnonzero(c.connected[b, :, i])  # ascending source order
+                tgt_agent.append(b)
+                tgt_neuron.append(i)
+                tgt_bias.append(c.bias[b, i])
+                tgt_act.append(int(c.activation[b, i]))
+                tgt_mod.append(bool(c.modulatory[b, js].any()))
+                for j in js.tolist():
+                    if c.plastic[b, j, i]:
+                        eta, *abcd = c.rule[:, b, j, i].tolist()
+                        p_conn.append(len(conn_src))
+                        p_tgt.append(t)
+                        p_src.append(j)
+                        p_coef.append([eta * v for v in abcd])  # eta*A, eta*B, eta*C, eta*D
+                        p_lo.append(c.bounds[0, b, j, i])
+                        p_hi.append(c.bounds[1, b, j, i])
+                    conn_src.append(j)
+                    conn_kind.append(bool(c.modulatory[b, j]))
+                    conn_w0.append(weights[b, j, i])
+                conn_off.append(len(conn_src))
+            tgt_off.append(len(tgt_neuron))
+            p_off.append(len(p_conn))
+        ints = lambda v: np.asarray(v, dtype=np.int64)  # noqa: E731
+        floats = lambda v: np.asarray(v, dtype=np.float64)  # noqa: E731
+        self._in = (ints(in_off), ints(in_neuron), ints(in_chan))
+        self._tgt_off, self._tgt_neuron = ints(tgt_off), ints(tgt_neuron)
+        self._tgt_agent = ints(tgt_agent)
+        self._tgt_bias, self._tgt_act = floats(tgt_bias), np.asarray(tgt_act, dtype=np.int8)
+        self._tgt_mod = np.asarray(tgt_mod, dtype=np.bool_)
+        self._conn_off, self._conn_src = ints(conn_off), ints(conn_src)
+        self._conn_kind = np.asarray(conn_kind, dtype=np.bool_)
+        self._w0 = floats(conn_w0)
+        self._w = self._w0.copy()  # current weights of every connection
+        self._p_off, self._p_conn, self._p_tgt, self._p_src = ints(p_off), ints(p_conn), ints(p_tgt), ints(p_src)
+        self._p_coef = floats(p_coef).reshape(-1, 4)
+        self._p_lo, self._p_hi = floats(p_lo), floats(p_hi)
+        self._P = len(p_conn)
+        self._conn_agent = np.repeat(self._tgt_agent, np.diff(self._conn_off)) if len(conn_src) else ints([])
+        T = len(tgt_neuron)
+        self._x = np.zeros(T)  # a_i + bias_i
+        self._h = np.zeros(2 * T)  # x/2, then m/2; tanh of both after the first kernel
+        self._m = np.zeros(T)  # m_i of the last step (for viewers)
+        self._new = np.zeros(T)
+        self._o = np.zeros((N, n))  # neuron values
+        self._bias_at = np.nonzero(c.is_bias)
+        self._o[self._bias_at] = 1.0
+        self._outputs = np.ascontiguousarray(c.outputs)
+        out_act = np.take_along_axis(c.activation, c.outputs, axis=1)
         self._out_scale = np.where(out_act == LOGISTIC, 2.0, 1.0)
         self._out_offset = np.where(out_act == LOGISTIC, -1.0, 0.0)
-        self._o = np.zeros((n + 1, N))  # neuron values, row n is junk
-        self._acc = np.zeros((2, T, N))
-        self._prod = np.zeros((n, 2, T, N))
-        self._x = np.zeros((T, N))
-        self._t = np.zeros((T, N))
-        self._p_pre, self._p_post, self._p_dw, self._p_aux = (np.zeros((P, N)) for _ in range(4))
-        self._o[self._bias_rows] = 1.0
+        self._cmd = np.zeros((N, 2))
+        self._everyone = np.ones(N, dtype=np.bool_)
 
     # -- the protocol ---------------------------------------------------------------
     def reset_lifetime(self, seeds: np.ndarray) -> None:
         """Restore every agent's initial weights and clear activations; ``seeds`` (N,) unused."""
-        np.copyto(self._buf, self._w0)
-        np.copyto(self._p_w, self._p_w0)
+        np.copyto(self._w, self._w0)
         self._o.fill(0.0)
-        self._o[self._bias_rows] = 1.0
-        self._acc.fill(0.0)
+        self._o[self._bias_at] = 1.0
+        self._m.fill(0.0)
 
     def reset_trial(self, mask: np.ndarray) -> None:
         """Clear activations of the agents where ``mask`` (N,) is true; weights are kept."""
         mask = np.asarray(mask, dtype=bool)
-        self._o[:, mask] = 0.0
-        self._o[self._bias_rows] = 1.0
-        self._acc[:, :, mask] = 0.0
+        self._o[mask] = 0.0
+        self._o[self._bias_at] = 1.0
+        self._m[mask[self._tgt_agent]] = 0.0
 
-    def act(self, obs: np.ndarray) -> np.ndarray:
-        """One synchronous step of every network: ``obs`` (N, C) -> wheel commands (N, 2)."""
+    def act(self, obs: np.ndarray, active: np.ndarray | None = None) -> np.ndarray:
+        """One synchronous step of every network: ``obs`` (N, C) -> wheel commands (N, 2).
+
+        ``active`` (N,) bool, optional: step only these agents; the others keep their
+        state and get zero commands."""
         obs = np.ascontiguousarray(obs, dtype=np.float64)
         N = self.n_agents
         if obs.shape != (N, self.layout.size):
             raise ValueError(f"observations of shape {obs.shape}; expected ({N}, {self.layout.size})")
-        with np.errstate(all="ignore"):
-            return self._step(obs)
+        if active is None:
+            active = self._everyone
+        return self.step_active(obs, np.ascontiguousarray(active, dtype=np.bool_)).copy()
 
-    def _step(self, obs: np.ndarray) -> np.ndarray:
-        o, acc, w = self._o, self._acc, self._w
-        o_flat = o.reshape(-1)
-        np.take(obs.reshape(-1), self._in_src, out=self._in_buf, mode="clip")
-        o_flat[self._in_dst] = self._in_buf
-        # All products in one call, then the sums in fixed source order, one add each.
-        prod = np.multiply(w, o[: self._n, None, None, :], out=self._prod)
-        acc.fill(0.0)
-        for j in self._sources:
-            np.add(acc, prod[j], out=acc)
-        x = np.add(acc[0], self._bias, out=self._x)
-        t = np.tanh(np.multiply(x, 0.5, out=self._t), out=self._t)
-        if self._mixed:
-            t = np.where(self._is_lin, x, np.where(self._is_log, 0.5 * (1.0 + t), t))
-        if self._P:
-            pre, post, dw, aux = self._p_pre, self._p_post, self._p_dw, self._p_aux
-            np.take(o_flat, self._p_src, out=pre, mode="clip")
-            np.take(t.reshape(-1), self._p_tgt, out=post, mode="clip")
-            eA, eB, eC, eD = self._p_coef
-            # eta (A pre post + B pre + C post + D) as (eta A post + eta B) pre + (eta C post + eta D)
-            np.multiply(eA, post, out=dw)
-            np.add(dw, eB, out=dw)
-            np.multiply(dw, pre, out=dw)
-            np.multiply(eC, post, out=aux)
-            np.add(aux, eD, out=aux)
-            np.add(dw, aux, out=dw)
-            if self._any_mod:
-                mod = np.multiply(acc[1], 0.5, out=self._x)
-                np.tanh(mod, out=mod)
-                np.copyto(mod, 1.0, where=self._no_mod)
-                np.take(mod.reshape(-1), self._p_tgt, out=aux, mode="clip")
-                np.multiply(aux, dw, out=dw)
-            dw += self._p_w
-            np.clip(dw, self._p_lo, self._p_hi, out=self._p_w)
-            self._buf[self._p_flat] = self._p_w
-        o_flat[self._slot_flat] = t
-        cmd = o_flat[self._out_flat] * self._out_scale + self._out_offset
-        return np.clip(cmd, -1.0, 1.0).T.copy()
+    #: the simulator may call :meth:`step_active` instead of :meth:`act`
+    steps_active = True
+
+    def step_active(self, obs: np.ndarray, active: np.ndarray) -> np.ndarray:
+        """The step of the agents where ``active`` is true, into the controller's own
+        command buffer (the simulator's fast path: ``obs`` (N, C) float64 and ``active``
+        (N,) bool, both C-contiguous; no checks). The buffer is reused by the next call."""
+        in_off, in_neuron, in_chan = self._in
+        _sums_kernel(obs, active, self._o, in_off, in_neuron, in_chan, self._tgt_off, self._conn_off,
+                     self._conn_src, self._conn_kind, self._w, self._tgt_bias, self._x, self._h, self._m)
+        with np.errstate(all="ignore"):
+            np.tanh(self._h, out=self._h)
+        self._cmd.fill(0.0)
+        _update_kernel(active, self._o, self._tgt_off, self._tgt_neuron, self._tgt_act, self._tgt_mod, self._x,
+                       self._h, self._new, self._p_off, self._p_conn, self._p_tgt, self._p_src, self._p_coef,
+                       self._p_lo, self._p_hi, self._w, self._outputs, self._out_scale, self._out_offset, self._cmd)
+        return self._cmd
 
     # -- batching and inspection ----------------------------------------------------
     @classmethod
@@ -320,12 +295,13 @@ class NetworkController:
         out = cls([s for c in controllers for s in c.specs], layout)
         row = 0
         for c in controllers:
-            cols = slice(row, row + c.n_agents)
-            out._o[: c._n, cols] = c._o[: c._n]
-            out._acc[:, : c._T, cols] = c._acc
-            out._p_w[: c._P, cols] = c._p_w
+            rows = slice(row, row + c.n_agents)
+            out._o[rows, : c._n] = c._o
+            t0, t1 = out._tgt_off[row], out._tgt_off[row + c.n_agents]
+            out._m[t0:t1] = c._m
+            q0, q1 = out._conn_off[t0], out._conn_off[t1]
+            out._w[q0:q1] = c._w
             row += c.n_agents
-        out._buf[out._p_flat] = out._p_w
         return out
 
     def state(self) -> dict[str, np.ndarray]:
@@ -333,23 +309,100 @@ class NetworkController:
         ``modulation`` (N, n) m_i of the last step, ``weights`` (N, n, n) current weights
         indexed [agent, source j, target i]. Padded entries are 0; see ``neuron_ids``."""
         N, n = self.n_agents, self._n
-        mod = np.zeros((n + 1, N))
-        mod.reshape(-1)[self._slot_flat] = self._acc[1]
-        w = np.zeros((n, n + 1, N))
-        for t in range(self._T):
-            w[:, self._slot_neuron[t], np.arange(N)] = self._w[:, 0, t] + self._w[:, 1, t]
-        return {
-            "outputs": self._o[:n].T.copy(),
-            "modulation": mod[:n].T.copy(),
-            "weights": w[:, :n].transpose(2, 0, 1).copy(),
-        }
+        mod = np.zeros((N, n))
+        mod[self._tgt_agent, self._tgt_neuron] = self._m
+        w = np.zeros((N, n, n))
+        targets = np.repeat(self._tgt_neuron, np.diff(self._conn_off))
+        w[self._conn_agent, self._conn_src, targets] = self._w + 0.0
+        return {"outputs": self._o.copy(), "modulation": mod, "weights": w}
 
     def faulted(self) -> np.ndarray:
         """(N,) bool: the agent holds a non-finite neuron value or plastic weight."""
-        bad = ~np.isfinite(self._o[: self._n]).all(axis=0)
+        bad = ~np.isfinite(self._o).all(axis=1)
         if self._P:
-            bad |= ~np.isfinite(self._p_w).all(axis=0)
+            broken = ~np.isfinite(self._w[self._p_conn])
+            if broken.any():
+                bad[self._conn_agent[self._p_conn[broken]]] = True
         return bad
+
+
+@njit(cache=True, nogil=True)
+def _sums_kernel(obs, active, o, in_off, in_neuron, in_chan, tgt_off, conn_off, conn_src, conn_kind, w,
+                 tgt_bias, x, h, m):  # pragma: no cover - compiled
+    """Steps 1 and 2: present the inputs, then per computed neuron the standard sum (plus
+    bias) and the modulatory sum in ascending source order; h gets x/2 and m/2."""
+    T = x.shape[0]
+    for b in range(o.shape[0]):
+        if not active[b]:
+            continue
+        for q in range(in_off[b], in_off[b + 1]):
+            o[b, in_neuron[q]] = obs[b, in_chan[q]]
+        for t in range(tgt_off[b], tgt_off[b + 1]):
+            s0 = 0.0
+            s1 = 0.0
+            for q in range(conn_off[t], conn_off[t + 1]):
+                v = w[q] * o[b, conn_src[q]]
+                if conn_kind[q]:
+                    s1 = s1 + v
+                else:
+                    s0 = s0 + v
+            xt = s0 + tgt_bias[t]
+            x[t] = xt
+            h[t] = xt * 0.5
+            m[t] = s1
+            h[T + t] = s1 * 0.5
+
+
+@njit(cache=True, nogil=True)
+def _update_kernel(active, o, tgt_off, tgt_neuron, tgt_act, tgt_mod, x, h, new, p_off, p_conn, p_tgt, p_src, p_coef,
+                   p_lo, p_hi, w, outputs, out_scale, out_offset, cmd):  # pragma: no cover - compiled
+    """Steps 3 to 5 on the tanh values in h: outputs, the plastic rule, the neuron writes
+    and the wheel commands."""
+    T = x.shape[0]
+    for b in range(o.shape[0]):
+        if not active[b]:
+            continue
+        bad = False
+        for t in range(tgt_off[b], tgt_off[b + 1]):
+            code = tgt_act[t]
+            if code == LINEAR:
+                new[t] = x[t]
+            elif code == LOGISTIC:
+                new[t] = 0.5 * (1.0 + h[t])
+            else:
+                new[t] = h[t]
+            if not np.isfinite(new[t]):
+                bad = True
+        for q in range(p_off[b], p_off[b + 1]):
+            t = p_tgt[q]
+            pre = o[b, p_src[q]]
+            post = new[t]
+            dw = p_coef[q, 0] * post
+            dw = dw + p_coef[q, 1]
+            dw = dw * pre
+            aux = p_coef[q, 2] * post
+            aux = aux + p_coef[q, 3]
+            dw = dw + aux
+            if tgt_mod[t]:
+                dw = h[T + t] * dw
+            k = p_conn[q]
+            v = dw + w[k]
+            if v < p_lo[q]:
+                v = p_lo[q]
+            if v > p_hi[q]:
+                v = p_hi[q]
+            if not np.isfinite(v):
+                bad = True
+            w[k] = v
+        for t in range(tgt_off[b], tgt_off[b + 1]):
+            o[b, tgt_neuron[t]] = new[t]
+        for side in range(2):
+            c = o[b, outputs[b, side]] * out_scale[b, side] + out_offset[b, side]
+            if c < -1.0:
+                c = -1.0
+            if c > 1.0:
+                c = 1.0
+            cmd[b, side] = np.nan if bad else c
 
 
 def network_factory(specs: Sequence[NetworkSpec] | NetworkSpec) -> ControllerFactory:

@@ -10,6 +10,15 @@ pitch depend only on the world, never on the batch size.
 Robots are driven by force and torque towards the commanded wheel speeds (never by
 overwriting velocity, which would defeat the contact solver), computed for the whole
 batch at once and written with ``pymunk.batch``.
+
+Wall contacts are found without pymunk callbacks: after every physics step a compiled
+kernel repeats pymunk's own circle-to-segment test (Chipmunk's ``CircleToSegment``: the
+closest point of the segment, then squared distance below the squared radius) on the walls
+near each robot, in the same global coordinates and the same floating-point operations, and
+keeps each robot's set of touching walls. A contact *begins* when a wall enters that set,
+which is when pymunk calls a ``begin`` handler (once per shape pair, on the first step the
+pair collides after a step it did not). ``tests/test_sim_contacts.py`` checks the kernel
+against pymunk's handlers step by step.
 """
 
 from __future__ import annotations
@@ -100,14 +109,15 @@ class Arena:
         self._robot_filter = robot_filter
         self.bodies: list[pymunk.Body] = []
         self.shapes: list[pymunk.Circle] = []
-        self._shape_agent: dict[int, int] = {}
         for k in range(n):
             self._new_robot(k, tuple(self.origins[k]))
         self._body_ids = np.array([b.id for b in self.bodies], dtype=np.uintp)
         space.add(*wall_shapes, *[x for k in range(n) for x in (self.bodies[k], self.shapes[k])])
-        self.touching = np.zeros(n, dtype=np.int64)
-        self.contact_begun = np.zeros(n, dtype=bool)
-        space.on_collision(ROBOT_TYPE, WALL_TYPE, begin=self._begin, separate=self._separate)
+        self.contact_begun = np.zeros(n, dtype=np.bool_)
+        self._touch = np.zeros((n, MAX_TOUCHING), dtype=np.int64)  # walls each robot touches
+        self._n_touch = np.zeros(n, dtype=np.int64)
+        self._walls = np.ascontiguousarray(walls, dtype=np.float64).reshape(-1, 4)
+        self._contact_grid = ContactGrid(self._walls, self.radius)
 
         self._buf = pb.Buffer()
         self._wbuf = pb.Buffer()
@@ -127,7 +137,6 @@ class Arena:
         circle.elasticity = 0.0
         self.bodies.append(body)
         self.shapes.append(circle)
-        self._shape_agent[id(circle)] = k
 
     def _remap(self) -> None:
         """Map live agents to their rows in pymunk's body order (found by BODY_ID); the
@@ -153,7 +162,7 @@ class Arena:
         for k in agents:
             self.space.remove(self.bodies[k], self.shapes[k])
             self.live[k] = False
-            self.touching[k] = 0
+            self._n_touch[k] = 0
         self._remap()
 
     def revive(self) -> None:
@@ -167,19 +176,10 @@ class Arena:
         self.live[:] = True
         self._remap()
 
-    # -- contacts (called by pymunk only when a contact begins or ends) ---------------
-    def _agent_of(self, arbiter: pymunk.Arbiter) -> int:
-        a, b = arbiter.shapes
-        return self._shape_agent.get(id(a), self._shape_agent.get(id(b), -1))
-
-    def _begin(self, arbiter: pymunk.Arbiter, space: pymunk.Space, data) -> None:
-        k = self._agent_of(arbiter)
-        self.touching[k] += 1
-        self.contact_begun[k] = True
-
-    def _separate(self, arbiter: pymunk.Arbiter, space: pymunk.Space, data) -> None:
-        k = self._agent_of(arbiter)
-        self.touching[k] = max(0, self.touching[k] - 1)
+    @property
+    def touching(self) -> np.ndarray:
+        """(N,) how many walls each robot touches after the last physics step."""
+        return self._n_touch.copy()
 
     # -- bulk state ---------------------------------------------------------------
     def read(self) -> np.ndarray:
@@ -217,6 +217,14 @@ class Arena:
             pb.set_space_bodies(self.space, _WRITE, self._wbuf)
             self.space.step(self.dt)
             self.read()
+            self.contacts()
+
+    def contacts(self) -> None:
+        """Update each live robot's touching walls from the current state; a wall that
+        enters a robot's set sets ``contact_begun`` (cleared by the caller)."""
+        g = self._contact_grid
+        _contact_kernel(self.state, self.origins, self._live_idx, self._walls, self.radius, g.x0, g.y0, g.cell,
+                        g.nx, g.ny, g.cell_start, g.cell_walls, self._touch, self._n_touch, self.contact_begun)
 
     def place(self, agents: np.ndarray, positions: np.ndarray, angles: np.ndarray) -> None:
         """Put the given live agents at rest at local ``positions`` (K, 2), ``angles`` (K,),
@@ -228,7 +236,7 @@ class Arena:
         moves nothing and clears that correction.
         """
         agents = np.asarray(agents, dtype=np.intp)
-        for k in agents[(self.touching[agents] > 0) | self.contact_begun[agents]].tolist():
+        for k in agents[(self._n_touch[agents] > 0) | self.contact_begun[agents]].tolist():
             pymunk.Body.update_position(self.bodies[k], 0.0)
         self._buf.clear()
         pb.get_space_bodies(self.space, _READ, self._buf)
@@ -268,3 +276,97 @@ def _drive_kernel(state, rows, v, omega, dt, mass, moment, out):  # pragma: no c
         out[r, 0] = mass * (speed * math.cos(heading) - state[k, 3]) / dt
         out[r, 1] = mass * (speed * math.sin(heading) - state[k, 4]) / dt
         out[r, 2] = moment * (omega[k] - state[k, 5]) / dt
+
+
+#: Most walls one robot can touch at once that the contact kernel tracks; a robot touching
+#: more (only in mazes of tiny segments) counts every extra wall as a new contact.
+MAX_TOUCHING = 32
+
+
+class ContactGrid:
+    """Walls bucketed for contact tests: each cell of a uniform grid (world-file
+    coordinates) lists every wall within ``radius`` (plus a small margin) of the cell, so
+    the walls a robot centred in the cell can touch are all listed there. Stored flat:
+    cell c's walls are ``cell_walls[cell_start[c]:cell_start[c + 1]]``."""
+
+    def __init__(self, walls: np.ndarray, radius: float) -> None:
+        import shapely
+        from shapely.geometry import LineString, box
+
+        walls = np.asarray(walls, dtype=np.float64).reshape(-1, 4)
+        margin = radius + 1e-6
+        xs, ys = np.r_[walls[:, 0], walls[:, 2]], np.r_[walls[:, 1], walls[:, 3]]
+        self.x0, self.y0 = float(xs.min() - margin), float(ys.min() - margin)
+        width, height = float(xs.max() + margin) - self.x0, float(ys.max() + margin) - self.y0
+        cell = max(4.0 * radius, 0.05)
+        while (width / cell) * (height / cell) > 250_000:
+            cell *= 2.0
+        self.cell = cell
+        self.nx, self.ny = max(1, math.ceil(width / cell)), max(1, math.ceil(height / cell))
+        tree = shapely.STRtree([LineString([(w[0], w[1]), (w[2], w[3])]) for w in walls])
+        jj, ii = np.meshgrid(np.arange(self.ny), np.arange(self.nx), indexing="ij")
+        x, y = self.x0 + ii.ravel() * cell, self.y0 + jj.ravel() * cell
+        cells = shapely.buffer(shapely.box(x, y, x + cell, y + cell), margin, join_style="mitre")
+        cell_idx, wall_idx = tree.query(cells, predicate="intersects")
+        order = np.lexsort((wall_idx, cell_idx))
+        self.cell_walls = np.ascontiguousarray(wall_idx[order], dtype=np.int64)
+        counts = np.bincount(cell_idx, minlength=self.nx * self.ny)
+        self.cell_start = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+
+
+@njit(cache=True, nogil=True)
+def _contact_kernel(state, origins, live_idx, walls, radius, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls,
+                    touch, n_touch, begun):  # pragma: no cover - compiled
+    """pymunk's circle-to-segment contact test for every live robot and the walls near it.
+
+    The arithmetic is Chipmunk's ``CircleToSegment`` on the same numbers pymunk holds: the
+    segment ends as built (tile origin + local end), the body position as read; the
+    segment radius is 0 and segments have no neighbour tangents, so a contact exists
+    exactly when the squared distance from the centre to the closest point is below r^2.
+    """
+    mindist = radius + 0.0
+    r2 = mindist * mindist
+    cap = touch.shape[1]
+    scratch = np.empty(cap, dtype=np.int64)
+    for q in range(live_idx.shape[0]):
+        k = live_idx[q]
+        px = state[k, 0]
+        py = state[k, 1]
+        ox = origins[k, 0]
+        oy = origins[k, 1]
+        ci = int(math.floor(((px - ox) - gx0) / gcell))
+        cj = int(math.floor(((py - oy) - gy0) / gcell))
+        ci = min(max(ci, 0), gnx - 1)
+        cj = min(max(cj, 0), gny - 1)
+        c = cj * gnx + ci
+        old = n_touch[k]
+        count = 0
+        for m in range(cell_start[c], cell_start[c + 1]):
+            w = cell_walls[m]
+            ax = ox + walls[w, 0]
+            ay = oy + walls[w, 1]
+            bx = ox + walls[w, 2]
+            by = oy + walls[w, 3]
+            dx = bx - ax
+            dy = by - ay
+            t = (dx * (px - ax) + dy * (py - ay)) / (dx * dx + dy * dy)
+            t = t if t < 1.0 else 1.0  # cpfclamp01: cpfmax(0, cpfmin(t, 1))
+            t = 0.0 if 0.0 > t else t
+            nx = px - (ax + dx * t)
+            ny = py - (ay + dy * t)
+            if nx * nx + ny * ny < r2:
+                seen = False
+                for e in range(old):
+                    if touch[k, e] == w:
+                        seen = True
+                        break
+                if not seen:
+                    begun[k] = True
+                if count < cap:
+                    scratch[count] = w
+                    count += 1
+                else:
+                    begun[k] = True  # past the tracked capacity: counted as a new contact
+        for e in range(count):
+            touch[k, e] = scratch[e]
+        n_touch[k] = count

@@ -2,17 +2,25 @@
 
 One :class:`Batch` is one world, N agents and their controllers. Each control step:
 
-1. *observe*: range finders and zone signals for every agent, as :class:`Layout` says;
-2. *act*: each controller group maps its slice of observations to wheel commands;
-   non-finite commands (or a controller that raises) stop that agent and record a fault;
-3. *move*: the arena advances one control period (``substeps`` physics steps);
-4. *score*: the trial machine of every agent advances (crash, site, home, timeout);
-   agents whose trial ended are recorded, relocated, reset to home and their
-   controllers' ``reset_trial`` is called — the only per-agent Python work, and only at
-   trial boundaries.
+1. *act*: each controller group maps its slice of the last observations to wheel
+   commands; non-finite commands (or a controller that raises) stop that agent and record
+   a fault;
+2. *move*: the arena advances one control period (``substeps`` physics steps, wall
+   contacts found by a compiled kernel after each);
+3. *score*: one compiled kernel advances every agent's trial machine (crash, site, home,
+   stall, timeout), writes the records of the trials that ended and restarts the agents
+   that go on; Python only relocates sites (a few times per lifetime), puts restarted
+   robots at home in one bulk write and resets their controllers by mask;
+4. *observe*: one compiled kernel casts the range finders and reads the zone signals of
+   every live agent, as :class:`Layout` says.
+
+So per control step Python calls pymunk (``space.step`` and the bulk body I/O) and the
+kernels, whatever N is; agents that have finished leave the physics, the kernels and the
+network step, so a batch's cost falls with its live agents.
 
 The step API (``step``, ``positions``, ``angles``, ``ray_points``, ``phase``, ``events``
-...) is what the viewer and recorder read; they never re-simulate.
+...) is what the viewer and recorder read; they never re-simulate. ``events=False`` skips
+building :class:`Event` objects, for headless evaluation.
 """
 
 from __future__ import annotations
@@ -22,18 +30,28 @@ from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
+import shapely
+from numba import njit
 
 from ..control.protocol import Controller, Layout, combine_runs
 from ..world.geometry import Geometry, build_geometry
 from ..world.spec import WorldSpec
 from .arena import MAX_AGENTS, Arena
-from .seeding import CONTROLLER_STREAM, agent_generator, agent_key
-from .sensors import WallGrid, Zones, cast_rays, proximity, ray_directions
-from .seeding import normals
+from .seeding import CONTROLLER_STREAM, agent_generator, agent_key, normals
+from .sensors import WallGrid, Zones, ray_directions
+from ._cast_shim import cast_one, kernel_args as _shim_args  # TEMP
 from .task import CRASHED, NO_SITE, AgentResult, Phase, RelocationRecord, TrialRecord, draw_schedule
 
 _SENSOR_SALT = 1
 _MOTOR_SALT = 2
+
+#: Signal sources in the compiled observation plan.
+_HOME, _REWARD, _BIAS, _DISC, _POLYGON = range(5)
+
+#: Flags the trial kernel sets per agent (bit masks).
+CRASH, ARRIVE, HOME, TIMEOUT, ENDED, FINISHED, STARTING, STALLED, RELOCATE = (1 << k for k in range(9))
+
+_NEVER = np.iinfo(np.int64).max
 
 
 @dataclass(frozen=True)
@@ -50,6 +68,31 @@ class Event:
     detail: dict
 
 
+class _Records:
+    """Every agent's trial records as columns, (N, capacity) each, row k's first
+    ``count[k]`` entries filled; capacity doubles as trials go on."""
+
+    FIELDS = (("site", np.int64), ("value", np.float64), ("crashes", np.int64), ("returned", np.bool_),
+              ("timed_out", np.bool_), ("stalled", np.bool_), ("steps", np.int64), ("score", np.float64),
+              ("end_x", np.float64), ("end_y", np.float64), ("outcome", np.int64))
+
+    def __init__(self, n: int, trials: int) -> None:
+        self.capacity = max(1, min(trials, 64))
+        self.columns = {name: np.zeros((n, self.capacity), dtype=t) for name, t in self.FIELDS}
+
+    def ensure(self, trials_started: int) -> None:
+        if trials_started > self.capacity:
+            grow = max(trials_started, 2 * self.capacity)
+            for name, col in self.columns.items():
+                wider = np.zeros((col.shape[0], grow), dtype=col.dtype)
+                wider[:, : self.capacity] = col
+                self.columns[name] = wider
+            self.capacity = grow
+
+    def kernel_args(self) -> tuple:
+        return tuple(self.columns[name] for name, _ in self.FIELDS)
+
+
 class Batch:
     """N agents of one world stepping in lockstep; see the module docstring."""
 
@@ -63,6 +106,7 @@ class Batch:
         geometry: Geometry | None = None,
         trials: int | None = None,
         labels: Sequence[str] | None = None,
+        events: bool = True,
     ) -> None:
         self.spec = spec
         self.geometry = geometry if geometry is not None else build_geometry(spec)
@@ -80,29 +124,48 @@ class Batch:
             raise ValueError(f"agent_ids has {self.agent_ids.size} entries for {self.n} agents")
         self.labels = list(labels) if labels is not None else [""] * self.n
         self.seed = int(seed)
+        self.record_events = bool(events)
         self.n_trials = int(trials) if trials is not None else spec.task.trials
         robot = spec.robot
         self.arena = Arena(spec, self.geometry, self.n)
         self.reach = robot.radius + robot.range_finders.max_range
         self.grid = WallGrid(self.geometry.walls, self.reach)
+        self._grid_args = _shim_args(self.grid)  # TEMP
         self.zones = Zones(spec)
         self.site_names = [s.name for s in spec.sites]
         self.ray_angles = np.radians(np.asarray(robot.range_finders.angles_deg, dtype=float))
         self.step_limit = max(1, math.ceil(spec.task.time_limit_s / spec.physics.control_period_s - 1e-9))
         self.control_period = spec.physics.control_period_s
-        self._signal_plan = self._plan_signals()
+        stall = spec.task.stall
+        self._stall_distance = stall.distance if stall is not None else -1.0
+        self._stall_steps = max(1, math.ceil(stall.seconds / self.control_period - 1e-9)) if stall is not None else 0
+        self._plan_signals()
+        # groups whose act() takes the active mask (compiled networks) skip finished agents
+        self._fast = [bool(getattr(type(ctrl), "steps_active", False)) for _, ctrl in self.groups]
         self.reset()
 
     # -- set-up -------------------------------------------------------------------
-    def _plan_signals(self) -> list[tuple[int, str, int]]:
-        """(channel index, source kind, marker index) for each signal channel."""
-        plan = []
-        markers = self.zones.marker_names
+    def _plan_signals(self) -> None:
+        """The compiled observation plan: per signal channel (source kind, disc centre and
+        squared radius); polygon markers are read with shapely after the kernel."""
+        markers = {m.name: m for m in self.spec.markers}
+        kinds, centres, radii2, self._polygons = [], [], [], []
         n_rays = len(self.ray_angles)
         for k, name in enumerate(self.spec.robot.signals):
-            kind = name if name in ("home", "reward", "bias") else "marker"
-            plan.append((n_rays + k, kind, markers.index(name) if kind == "marker" else -1))
-        return plan
+            centre, r2 = (0.0, 0.0), 0.0
+            if name in ("home", "reward", "bias"):
+                kind = {"home": _HOME, "reward": _REWARD, "bias": _BIAS}[name]
+            elif markers[name].polygon is None:
+                kind, centre, r2 = _DISC, tuple(markers[name].position), markers[name].radius**2
+            else:
+                kind = _POLYGON
+                self._polygons.append((n_rays + k, shapely.Polygon(markers[name].polygon)))
+            kinds.append(kind)
+            centres.append(centre)
+            radii2.append(r2)
+        self._sig_kind = np.asarray(kinds, dtype=np.int64)
+        self._sig_centre = np.asarray(centres, dtype=np.float64).reshape(-1, 2)
+        self._sig_r2 = np.asarray(radii2, dtype=np.float64)
 
     def reset(self) -> None:
         """Start the evaluation over: lifetime reset of every controller, trial 1 for all."""
@@ -113,6 +176,7 @@ class Batch:
         self._noise_keys = np.array([agent_key(self.seed, a) for a in ids], dtype=np.uint64)
         ctrl_seeds = np.array([agent_key(self.seed, a, CONTROLLER_STREAM) for a in ids], dtype=np.uint64)
         self._schedules = [draw_schedule(self.spec, rng) for rng in self._rngs]
+        self._next_relocation = np.array([sch[0][0] if sch else _NEVER for sch in self._schedules], dtype=np.int64)
         initial = np.array([self.spec.task.site_values[name] for name in self.site_names], dtype=float)
         self.site_values = np.tile(initial, (n, 1))  # (N, S)
         self.fitness = np.zeros(n)
@@ -127,19 +191,24 @@ class Batch:
         self.reward_value = np.zeros(n)
         self.reward_timer = np.zeros(n, dtype=np.int64)
         self.settle_timer = np.zeros(n, dtype=np.int64)
-        self.returned = np.zeros(n, dtype=bool)
+        self.returned = np.zeros(n, dtype=np.bool_)
+        self._anchor = np.zeros((n, 2))  # where the stall rule last saw the robot move
+        self._anchor_step = np.zeros(n, dtype=np.int64)
+        self._flags = np.zeros(n, dtype=np.int64)
+        self._records = _Records(n, self.n_trials)
         self.faults: list[str | None] = [None] * n
-        self.records: list[list[TrialRecord]] = [[] for _ in range(n)]
         self.relocation_log: list[list[RelocationRecord]] = [[] for _ in range(n)]
         self.steps_taken = 0
         self.events: list[Event] = []
         self.wheels = np.zeros((n, 2))
+        self.obs = np.zeros((n, self.layout.size))
+        self.ray_distances = np.full((n, len(self.ray_angles)), np.inf)
         for sl, ctrl in self.groups:
             ctrl.reset_lifetime(ctrl_seeds[sl])
         everyone = np.ones(n, dtype=bool)
         self._place_home(everyone)
         self._reset_controllers(everyone)
-        self.obs = self.observe()
+        self.observe()
 
     def _place_home(self, mask: np.ndarray) -> None:
         agents = np.flatnonzero(mask)
@@ -153,6 +222,8 @@ class Batch:
                 pos[row] += (r * math.cos(2 * math.pi * u[1]), r * math.sin(2 * math.pi * u[1]))
                 ang[row] += math.radians(home.heading_jitter_deg) * (2 * u[2] - 1)
         self.arena.place(agents, pos, ang)
+        self._anchor[agents] = pos
+        self._anchor_step[agents] = 0
 
     def _reset_controllers(self, mask: np.ndarray) -> None:
         for sl, ctrl in self.groups:
@@ -175,12 +246,17 @@ class Batch:
     def done(self) -> bool:
         return bool((self.phase == Phase.FINISHED).all())
 
+    @property
+    def records(self) -> list[list[TrialRecord]]:
+        """Per agent, the records of its trials so far."""
+        return [self._agent_records(k) for k in range(self.n)]
+
     def ray_points(self) -> np.ndarray:
         """(N, R, 2) end points of the range-finder rays of the last observation (a hit
         point, or the end of the range)."""
         dist = np.minimum(self.ray_distances, self.reach)
-        dirs = ray_directions(self._ray_heading, self.ray_angles)
-        return self._ray_origin[:, None, :] + dirs * dist[..., None]
+        dirs = ray_directions(self.angles, self.ray_angles)
+        return self.positions[:, None, :] + dirs * dist[..., None]
 
     def zone_states(self) -> dict[str, np.ndarray]:
         """Per zone an (N,) bool array: ``home``, each site name, each marker name."""
@@ -193,33 +269,25 @@ class Batch:
         return out
 
     def observe(self) -> np.ndarray:
-        """(N, C) observations for the current state; see :class:`Layout` for channels."""
-        pos = self.positions
-        heading = self.angles.copy()
-        live = self.arena.live
-        if live.all():
-            dist = cast_rays(self.grid, pos, heading, self.ray_angles, self.reach)
-        else:  # finished agents keep their last readings
-            dist = self.ray_distances.copy()
-            dist[live] = cast_rays(self.grid, pos[live], heading[live], self.ray_angles, self.reach)
-        self._ray_origin, self._ray_heading, self.ray_distances = pos, heading, dist
+        """Refresh and return ``obs`` (N, C) for the live agents (finished agents keep
+        their last observation); see :class:`Layout` for the channels."""
         rf = self.spec.robot.range_finders
-        prox = proximity(dist, self.spec.robot.radius, rf.max_range)
-        if rf.noise > 0:
-            prox = np.clip(prox * (1.0 + rf.noise * normals(self._noise_keys, self.agent_steps, prox.shape[1], _SENSOR_SALT)), 0.0, 1.0)
-        obs = np.empty((self.n, self.layout.size))
-        obs[:, : prox.shape[1]] = prox
-        markers = self.zones.in_markers(pos) if self.zones.marker_names else None
-        for channel, kind, marker in self._signal_plan:
-            if kind == "home":
-                obs[:, channel] = self.zones.at_home(pos)
-            elif kind == "reward":
-                obs[:, channel] = np.where(self.reward_timer > 0, self.reward_value, 0.0)
-            elif kind == "bias":
-                obs[:, channel] = 1.0
-            else:
-                obs[:, channel] = markers[:, marker]
-        return obs
+        arena = self.arena
+        _observe_kernel(arena.state, arena.origins, arena.live, self.ray_angles, self.reach, self.spec.robot.radius,
+                        rf.max_range, self._sig_kind, self._sig_centre, self._sig_r2, self.zones.home,
+                        self.zones.home_r2, self.reward_timer, self.reward_value, self.ray_distances, self.obs,
+                        *self._grid_args)
+        if rf.noise > 0 or self._polygons:
+            live = arena.live
+            r = len(self.ray_angles)
+            if rf.noise > 0:
+                prox = self.obs[live, :r]
+                noise = normals(self._noise_keys[live], self.agent_steps[live], r, _SENSOR_SALT)
+                self.obs[live, :r] = np.clip(prox * (1.0 + rf.noise * noise), 0.0, 1.0)
+            pos = self.positions[live]
+            for channel, polygon in self._polygons:
+                self.obs[live, channel] = shapely.contains_xy(polygon, pos[:, 0], pos[:, 1])
+        return self.obs
 
     # -- stepping ---------------------------------------------------------------------
     def step(self) -> list[Event]:
@@ -239,25 +307,26 @@ class Batch:
         arena.contact_begun[:] = False
         arena.step(wheels, self.spec.robot.max_wheel_speed, self.spec.robot.wheel_base)
         self.steps_taken += 1
-        self.agent_steps += active
-        self.steps_in_trial += active
-        self.reward_timer = np.maximum(self.reward_timer - 1, 0)
         self._score(active)
-        finished = (self.phase == Phase.FINISHED) & self.arena.live
+        finished = (self.phase == Phase.FINISHED) & arena.live
         if finished.any():
-            self.arena.retire(np.flatnonzero(finished))
-        self.obs = self.observe()
+            arena.retire(np.flatnonzero(finished))
+        self.observe()
         return self.events
 
     def _act(self, obs: np.ndarray, active: np.ndarray) -> np.ndarray:
         wheels = np.zeros((self.n, 2))
-        for sl, ctrl in self.groups:
-            if not active[sl].any():
+        for (sl, ctrl), fast in zip(self.groups, self._fast):
+            sub = active[sl]
+            if not sub.any():
                 continue
             try:
-                out = np.asarray(ctrl.act(obs[sl]), dtype=float)
-                if out.shape != (sl.stop - sl.start, 2):
-                    raise ValueError(f"act() returned shape {out.shape}; expected {(sl.stop - sl.start, 2)}")
+                if fast:  # a compiled network: steps only its active agents, never raises on NaN
+                    out = ctrl.step_active(obs[sl], sub)  # type: ignore[attr-defined]
+                else:
+                    out = np.asarray(ctrl.act(obs[sl]), dtype=float)
+                    if out.shape != (sl.stop - sl.start, 2):
+                        raise ValueError(f"act() returned shape {out.shape}; expected {(sl.stop - sl.start, 2)}")
             except Exception as exc:  # a user's controller may raise anything: fail only its agents
                 for k in range(sl.start, sl.stop):
                     if active[k]:
@@ -269,7 +338,7 @@ class Batch:
                     if active[k]:
                         self._fault(k, f"non-finite wheel command {out[k - sl.start].tolist()}")
                 out = np.where(bad[:, None], 0.0, out)
-            wheels[sl] = np.clip(out, -1.0, 1.0)
+            wheels[sl] = out if fast else np.clip(out, -1.0, 1.0)
         return wheels
 
     def _fault(self, k: int, reason: str) -> None:
@@ -279,113 +348,67 @@ class Batch:
 
     def _score(self, active: np.ndarray) -> None:
         scoring = self.spec.task.scoring
-        pos = self.positions
-        begun = self.arena.contact_begun & active
-        if begun.any():
-            self.crashes += begun
-            self.fitness += np.where(begun, scoring.crash_penalty, 0.0)
-            self.trial_score += np.where(begun, scoring.crash_penalty, 0.0)
-            for k in np.flatnonzero(begun).tolist():
-                self.events.append(Event(k, "crash", int(self.trial[k]), {}))
-        crash_end = begun if scoring.crash_ends_trial else np.zeros(self.n, dtype=bool)
-        running = active & ~crash_end
-
-        at_sites = self.zones.at_sites(pos)
-        arrive = running & (self.phase == Phase.OUTBOUND) & at_sites.any(axis=1)
-        if arrive.any():
-            hold = self.spec.task.reward_signal_steps
-            for k in np.flatnonzero(arrive).tolist():
-                site = int(np.argmax(at_sites[k]))
-                value = float(self.site_values[k, site])
-                self.site_reached[k] = site
-                self.collected[k] = value
-                self.fitness[k] += value
-                self.trial_score[k] += value
-                self.reward_value[k] = value
-                self.reward_timer[k] = hold
-                if scoring.return_home:
-                    self.phase[k] = Phase.HOMING
-                else:
-                    self.phase[k] = Phase.SETTLING
-                    self.settle_timer[k] = hold
-                self.events.append(Event(k, "site", int(self.trial[k]), {"site": self.site_names[site], "value": value}))
-
-        home = running & ~arrive & (self.phase == Phase.HOMING) & self.zones.at_home(pos)
-        if home.any():
-            self.returned |= home
-            self.fitness += np.where(home, scoring.home_bonus, 0.0)
-            self.trial_score += np.where(home, scoring.home_bonus, 0.0)
-            for k in np.flatnonzero(home).tolist():
-                self.events.append(Event(k, "home", int(self.trial[k]), {}))
-
-        settling = running & ~arrive & (self.phase == Phase.SETTLING)
-        self.settle_timer = np.where(settling, self.settle_timer - 1, self.settle_timer)
-        settled = settling & (self.settle_timer <= 0)
-
-        ended = crash_end | home | settled
-        timeout = active & ~ended & (self.steps_in_trial >= self.step_limit)
-        if timeout.any():
-            unfinished = timeout & ((self.phase == Phase.OUTBOUND) | (self.phase == Phase.HOMING))
-            self.fitness += np.where(unfinished, scoring.timeout_penalty, 0.0)
-            self.trial_score += np.where(unfinished, scoring.timeout_penalty, 0.0)
-            for k in np.flatnonzero(timeout).tolist():
-                self.events.append(Event(k, "timeout", int(self.trial[k]), {}))
-        ended |= timeout
-        if ended.any():
-            self._end_trials(ended, crash_end, timeout)
-
-    def _end_trials(self, ended: np.ndarray, crashed: np.ndarray, timeout: np.ndarray) -> None:
-        who = np.flatnonzero(ended)
-        pos = self.positions[who]
-        unfinished = timeout[who] & ((self.phase[who] == Phase.OUTBOUND) | (self.phase[who] == Phase.HOMING))
-        site = self.site_reached[who]
-        outcome = np.where(site >= 0, site, np.where(crashed[who], CRASHED, NO_SITE))
-        returned = self.returned[who] & self.spec.task.scoring.return_home
-        steps = self.steps_in_trial[who]
-        columns = zip(
-            who.tolist(), self.trial[who].tolist(), site.tolist(), outcome.tolist(), self.collected[who].tolist(),
-            self.crashes[who].tolist(), returned.tolist(), unfinished.tolist(), steps.tolist(),
-            np.round(steps * self.control_period, 9).tolist(), self.trial_score[who].tolist(), pos.tolist(),
+        arena = self.arena
+        flags = self._flags
+        summary, most = _trial_kernel(
+            active, arena.contact_begun, arena.state, arena.origins, self.zones.site_pos, self.zones.site_r2,
+            self.zones.home, self.zones.home_r2, self.site_values, scoring.crash_penalty, scoring.crash_ends_trial,
+            scoring.timeout_penalty, scoring.return_home, scoring.home_bonus, self.spec.task.reward_signal_steps,
+            self.step_limit, self._stall_distance, self._stall_steps, self.n_trials, self._next_relocation,
+            self.phase, self.trial, self.steps_in_trial, self.agent_steps, self.crashes, self.fitness,
+            self.trial_score, self.site_reached, self.collected, self.reward_value, self.reward_timer,
+            self.settle_timer, self.returned, self._anchor, self._anchor_step, flags, self._records.capacity,
+            *self._records.kernel_args(),
         )
-        starting = np.zeros(self.n, dtype=bool)
-        for k, trial, site_k, outcome_k, value, crashes, home, late, n_steps, time_s, score, end in columns:
-            record = TrialRecord(
-                trial=trial,
-                site=self.site_names[site_k] if site_k >= 0 else None,
-                value=value,
-                crashed=crashes > 0,
-                crashes=crashes,
-                returned_home=home,
-                timed_out=late,
-                steps=n_steps,
-                time_s=time_s,
-                score=score,
-                end_position=(end[0], end[1]),
-                outcome=outcome_k,
-            )
-            self.records[k].append(record)
-            self.events.append(Event(k, "trial-end", trial, {"outcome": outcome_k, "score": score}))
-            if self._schedules[k]:
-                self._relocate(k, trial)
-            if trial >= self.n_trials:
-                self.phase[k] = Phase.FINISHED
-                self.events.append(Event(k, "finished", trial, {"fitness": float(self.fitness[k])}))
-                continue
-            starting[k] = True
-        self.trial[starting] += 1
-        if starting.any():
-            self.phase[starting] = Phase.OUTBOUND
-            for name in ("steps_in_trial", "crashes", "reward_timer", "settle_timer"):
-                getattr(self, name)[starting] = 0
-            self.trial_score[starting] = 0.0
-            self.collected[starting] = 0.0
-            self.reward_value[starting] = 0.0
-            self.site_reached[starting] = NO_SITE
-            self.returned[starting] = False
+        if summary == 0:
+            return
+        if self.record_events:
+            self._emit(flags)
+        elif summary & RELOCATE:
+            for k in np.flatnonzero(flags & RELOCATE).tolist():
+                self._relocate(k, int(self.trial[k]) - (1 if flags[k] & STARTING else 0))
+        if summary & STARTING:
+            starting = (flags & STARTING) != 0
             self._place_home(starting)
             self._reset_controllers(starting)
-            for k in np.flatnonzero(starting).tolist():
-                self.events.append(Event(k, "trial-start", int(self.trial[k]), {}))
+            self._records.ensure(most)
+            if self.record_events:
+                for k in np.flatnonzero(starting).tolist():
+                    self.events.append(Event(k, "trial-start", int(self.trial[k]), {}))
+
+    def _emit(self, flags: np.ndarray) -> None:
+        """This step's events in the order the viewer and replays expect: crashes, sites,
+        homes, timeouts, then per ended trial its end, relocations and finish."""
+        ev = self.events
+        flagged = np.flatnonzero(flags).tolist()
+        cols = self._records.columns
+        ended_trial = {k: int(self.trial[k]) - (1 if flags[k] & STARTING else 0) for k in flagged}
+        for k in flagged:
+            if flags[k] & CRASH:
+                ev.append(Event(k, "crash", ended_trial[k], {}))
+        for k in flagged:
+            if flags[k] & ARRIVE:
+                t = ended_trial[k]
+                if flags[k] & ENDED:
+                    site, value = int(cols["site"][k, t - 1]), float(cols["value"][k, t - 1])
+                else:
+                    site, value = int(self.site_reached[k]), float(self.collected[k])
+                ev.append(Event(k, "site", t, {"site": self.site_names[site], "value": value}))
+        for k in flagged:
+            if flags[k] & HOME:
+                ev.append(Event(k, "home", ended_trial[k], {}))
+        for k in flagged:
+            if flags[k] & TIMEOUT:
+                ev.append(Event(k, "timeout", ended_trial[k], {"stalled": True} if flags[k] & STALLED else {}))
+        for k in flagged:
+            if flags[k] & ENDED:
+                t = ended_trial[k]
+                ev.append(Event(k, "trial-end", t, {"outcome": int(cols["outcome"][k, t - 1]),
+                                                    "score": float(cols["score"][k, t - 1])}))
+                if flags[k] & RELOCATE:
+                    self._relocate(k, t)
+                if flags[k] & FINISHED:
+                    ev.append(Event(k, "finished", t, {"fitness": float(self.fitness[k])}))
 
     def _relocate(self, k: int, trial: int) -> None:
         schedule = self._schedules[k]
@@ -398,11 +421,13 @@ class Batch:
             moved = event.named_sites()
             rec = RelocationRecord(after_trial=trial, action=event.action, sites=moved, before=before, after=after)
             self.relocation_log[k].append(rec)
-            self.events.append(Event(k, "relocation", trial, {"sites": moved, "after": rec.after}))
+            if self.record_events:
+                self.events.append(Event(k, "relocation", trial, {"sites": moved, "after": rec.after}))
         # events scheduled after a trial that already passed (a schedule past the trial
         # count) never apply; lint warns about them
         while schedule and schedule[0][0] < trial:
             schedule.pop(0)
+        self._next_relocation[k] = schedule[0][0] if schedule else _NEVER
 
     # -- running and results ----------------------------------------------------------
     def run(self, max_steps: int | None = None) -> list[AgentResult]:
@@ -412,12 +437,39 @@ class Batch:
             self.step()
         return self.results()
 
+    def _agent_records(self, k: int) -> list[TrialRecord]:
+        cols = self._records.columns
+        count = int(self.trial[k]) - (0 if self.phase[k] == Phase.FINISHED and self.faults[k] is None else 1)
+        count = min(count, self._records.capacity)
+        if count <= 0:
+            return []
+        row = {name: col[k, :count].tolist() for name, col in cols.items()}
+        times = np.round(cols["steps"][k, :count] * self.control_period, 9).tolist()
+        return [
+            TrialRecord(
+                trial=t + 1,
+                site=self.site_names[row["site"][t]] if row["site"][t] >= 0 else None,
+                value=row["value"][t],
+                crashed=row["crashes"][t] > 0,
+                crashes=row["crashes"][t],
+                returned_home=row["returned"][t],
+                timed_out=row["timed_out"][t],
+                steps=row["steps"][t],
+                time_s=times[t],
+                score=row["score"][t],
+                end_position=(row["end_x"][t], row["end_y"][t]),
+                outcome=row["outcome"][t],
+                stalled=row["stalled"][t],
+            )
+            for t in range(count)
+        ]
+
     def results(self) -> list[AgentResult]:
         return [
             AgentResult(
                 agent=int(self.agent_ids[k]),
                 fitness=float(self.fitness[k]),
-                trials=list(self.records[k]),
+                trials=self._agent_records(k),
                 relocations=list(self.relocation_log[k]),
                 steps=int(self.agent_steps[k]),
                 fault=self.faults[k],
@@ -425,3 +477,189 @@ class Batch:
             )
             for k in range(self.n)
         ]
+
+
+# -- compiled kernels ---------------------------------------------------------------------
+@njit(cache=True, nogil=True)
+def _observe_kernel(state, origins, live, ray_angles, reach, radius, max_range, sig_kind, sig_centre, sig_r2, home,
+                    home_r2, reward_timer, reward_value, dist, obs, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls,
+                    start, edge):  # pragma: no cover - compiled
+    """Range finders (distance from the centre to the first wall along each ray, then
+    proximity 1 - d/range with d from the body surface, 0 when nothing is in range) and
+    the zone signals, for every live agent, in world-file coordinates."""
+    n_rays = ray_angles.shape[0]
+    for k in range(state.shape[0]):
+        if not live[k]:
+            continue
+        px = state[k, 0] - origins[k, 0]
+        py = state[k, 1] - origins[k, 1]
+        heading = state[k, 2]
+        for j in range(n_rays):
+            d = cast_one(px, py, heading + ray_angles[j], reach, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls,
+                         start, edge)
+            dist[k, j] = d
+            if np.isfinite(d):
+                s = d - radius
+                s = 0.0 if s < 0.0 else (max_range if s > max_range else s)
+                obs[k, j] = 1.0 - s / max_range
+            else:
+                obs[k, j] = 0.0
+        for c in range(sig_kind.shape[0]):
+            kind = sig_kind[c]
+            if kind == 0:  # home
+                dx = px - home[0]
+                dy = py - home[1]
+                obs[k, n_rays + c] = 1.0 if dx**2 + dy**2 <= home_r2 else 0.0
+            elif kind == 1:  # reward
+                obs[k, n_rays + c] = reward_value[k] if reward_timer[k] > 0 else 0.0
+            elif kind == 2:  # bias
+                obs[k, n_rays + c] = 1.0
+            elif kind == 3:  # disc marker
+                dx = px - sig_centre[c, 0]
+                dy = py - sig_centre[c, 1]
+                obs[k, n_rays + c] = 1.0 if dx**2 + dy**2 <= sig_r2[c] else 0.0
+
+
+@njit(cache=True, nogil=True)
+def _trial_kernel(active, begun, state, origins, site_pos, site_r2, home, home_r2, site_values, crash_penalty,
+                  crash_ends_trial, timeout_penalty, return_home, home_bonus, hold, step_limit, stall_distance,
+                  stall_steps, n_trials, next_relocation, phase, trial, steps_in_trial, agent_steps, crashes, fitness,
+                  trial_score, site_reached, collected, reward_value, reward_timer, settle_timer, returned, anchor,
+                  anchor_step, flags, capacity, r_site, r_value, r_crashes, r_returned, r_timed_out, r_stalled,
+                  r_steps, r_score, r_end_x, r_end_y, r_outcome):  # pragma: no cover - compiled
+    """One control step of every agent's trial machine (see :class:`Phase`).
+
+    Per active agent, in this order: a wall contact that began is a crash (penalty; ends
+    the trial if the world says so); arriving in a site while outbound collects its value
+    and starts homing (or settling); reaching home while homing ends the trial; settling
+    counts down; a trial still running at the time limit, or whose robot stayed within the
+    stall distance for the stall time, times out (penalty unless it was settling). An
+    ended trial is recorded; the agent finishes after its last trial, otherwise its
+    per-trial state restarts and ``STARTING`` asks the caller to put it at home.
+    Returns (the OR of all flags, the highest trial number now started)."""
+    summary = 0
+    most = 0
+    S = site_pos.shape[0]
+    for k in range(active.shape[0]):
+        reward_timer[k] = reward_timer[k] - 1 if reward_timer[k] > 1 else 0
+        flags[k] = 0
+        if not active[k]:
+            continue
+        f = 0
+        agent_steps[k] += 1
+        steps_in_trial[k] += 1
+        px = state[k, 0] - origins[k, 0]
+        py = state[k, 1] - origins[k, 1]
+        crash_end = False
+        if begun[k]:
+            f |= CRASH
+            crashes[k] += 1
+            fitness[k] += crash_penalty
+            trial_score[k] += crash_penalty
+            crash_end = crash_ends_trial
+        ended = crash_end
+        arrived = False
+        if not crash_end:
+            if phase[k] == 0:  # outbound
+                site = -1
+                for s in range(S):
+                    dx = px - site_pos[s, 0]
+                    dy = py - site_pos[s, 1]
+                    if dx**2 + dy**2 <= site_r2[s]:
+                        site = s
+                        break
+                if site >= 0:
+                    arrived = True
+                    f |= ARRIVE
+                    value = site_values[k, site]
+                    site_reached[k] = site
+                    collected[k] = value
+                    fitness[k] += value
+                    trial_score[k] += value
+                    reward_value[k] = value
+                    reward_timer[k] = hold
+                    if return_home:
+                        phase[k] = 1
+                    else:
+                        phase[k] = 2
+                        settle_timer[k] = hold
+            if not arrived and phase[k] == 1:  # homing
+                dx = px - home[0]
+                dy = py - home[1]
+                if dx**2 + dy**2 <= home_r2:
+                    f |= HOME
+                    returned[k] = True
+                    fitness[k] += home_bonus
+                    trial_score[k] += home_bonus
+                    ended = True
+            if not arrived and phase[k] == 2:  # settling
+                settle_timer[k] -= 1
+                if settle_timer[k] <= 0:
+                    ended = True
+        timed_out = False
+        stalled = False
+        if not ended:
+            if steps_in_trial[k] >= step_limit:
+                timed_out = True
+            elif stall_steps > 0 and phase[k] != 2:
+                dx = px - anchor[k, 0]
+                dy = py - anchor[k, 1]
+                if dx * dx + dy * dy > stall_distance * stall_distance:
+                    anchor[k, 0] = px
+                    anchor[k, 1] = py
+                    anchor_step[k] = steps_in_trial[k]
+                elif steps_in_trial[k] - anchor_step[k] >= stall_steps:
+                    timed_out = True
+                    stalled = True
+                    f |= STALLED
+            if timed_out:
+                f |= TIMEOUT
+                ended = True
+        if ended:
+            f |= ENDED
+            t = trial[k]
+            unfinished = timed_out and (phase[k] == 0 or phase[k] == 1)
+            if unfinished:
+                fitness[k] += timeout_penalty
+                trial_score[k] += timeout_penalty
+            if t - 1 < capacity:
+                r = t - 1
+                r_site[k, r] = site_reached[k]
+                r_value[k, r] = collected[k]
+                r_crashes[k, r] = crashes[k]
+                r_returned[k, r] = returned[k] and return_home
+                r_timed_out[k, r] = unfinished
+                r_stalled[k, r] = stalled
+                r_steps[k, r] = steps_in_trial[k]
+                r_score[k, r] = trial_score[k]
+                r_end_x[k, r] = px
+                r_end_y[k, r] = py
+                if site_reached[k] >= 0:
+                    r_outcome[k, r] = site_reached[k]
+                elif crash_end:
+                    r_outcome[k, r] = CRASHED
+                else:
+                    r_outcome[k, r] = NO_SITE
+            if next_relocation[k] <= t:
+                f |= RELOCATE
+            if t >= n_trials:
+                phase[k] = 3
+                f |= FINISHED
+            else:
+                f |= STARTING
+                trial[k] = t + 1
+                phase[k] = 0
+                steps_in_trial[k] = 0
+                crashes[k] = 0
+                reward_timer[k] = 0
+                settle_timer[k] = 0
+                trial_score[k] = 0.0
+                collected[k] = 0.0
+                reward_value[k] = 0.0
+                site_reached[k] = -1
+                returned[k] = False
+                if t + 1 > most:
+                    most = t + 1
+        flags[k] = f
+        summary |= f
+    return summary, most

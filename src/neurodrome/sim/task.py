@@ -43,6 +43,7 @@ class TrialRecord:
     score: float  #: this trial's contribution to fitness
     end_position: tuple[float, float]
     outcome: int  #: site index reached, else CRASHED if the trial ended in a crash, else NO_SITE
+    stalled: bool = False  #: the timeout came from the world's stall rule, not the time limit
 
 
 @dataclass

@@ -222,6 +222,16 @@ class Scoring(_Model):
     home_bonus: Finite = Field(0.0, description="added when the robot gets back home")
 
 
+class Stall(_Model):
+    """End a trial early when the robot stands still: its centre has stayed within
+    ``distance`` metres of one spot for ``seconds`` (outbound or homing). The trial counts
+    as a timeout, with the timeout penalty. A common rule in evolutionary robotics (no
+    single source); it saves the time a stuck controller would spend until the limit."""
+
+    distance: Positive = Field(description="metres the centre must move to count as moving")
+    seconds: Positive = Field(description="how long the robot may stay within that distance")
+
+
 class Task(_Model):
     trials: Annotated[int, Field(ge=1, le=100_000, strict=True)] = 100
     time_limit_s: Positive = Field(30.0, description="per trial, seconds")
@@ -231,6 +241,7 @@ class Task(_Model):
     reward_signal_steps: Annotated[int, Field(ge=1, le=10_000, strict=True)] = Field(
         5, description="control steps the reward signal holds the value collected"
     )
+    stall: Stall | None = Field(None, description="end a trial early when the robot stands still (off by default)")
 
 
 class Physics(_Model):
