@@ -238,6 +238,7 @@ class NetworkController:
         self._out_offset = np.where(out_act == LOGISTIC, -1.0, 0.0)
         self._cmd = np.zeros((N, 2))
         self._everyone = np.ones(N, dtype=np.bool_)
+        self.bad_count = 0  #: agents given NaN commands by the last step
 
     # -- the protocol ---------------------------------------------------------------
     def reset_lifetime(self, seeds: np.ndarray) -> None:
@@ -277,10 +278,8 @@ class NetworkController:
         in_off, in_neuron, in_chan = self._in
         _sums_kernel(obs, active, self._o, in_off, in_neuron, in_chan, self._tgt_off, self._conn_off,
                      self._conn_src, self._conn_kind, self._w, self._tgt_bias, self._x, self._h, self._m)
-        with np.errstate(all="ignore"):
-            np.tanh(self._h, out=self._h)
-        self._cmd.fill(0.0)
-        _update_kernel(active, self._o, self._tgt_off, self._tgt_neuron, self._tgt_act, self._tgt_mod, self._x,
+        np.tanh(self._h, out=self._h)  # finite or NaN arguments: no floating-point warnings
+        self.bad_count = _update_kernel(active, self._o, self._tgt_off, self._tgt_neuron, self._tgt_act, self._tgt_mod, self._x,
                        self._h, self._new, self._p_off, self._p_conn, self._p_tgt, self._p_src, self._p_coef,
                        self._p_lo, self._p_hi, self._w, self._outputs, self._out_scale, self._out_offset, self._cmd)
         return self._cmd
@@ -359,8 +358,11 @@ def _update_kernel(active, o, tgt_off, tgt_neuron, tgt_act, tgt_mod, x, h, new, 
     """Steps 3 to 5 on the tanh values in h: outputs, the plastic rule, the neuron writes
     and the wheel commands."""
     T = x.shape[0]
+    n_bad = 0
     for b in range(o.shape[0]):
         if not active[b]:
+            cmd[b, 0] = 0.0
+            cmd[b, 1] = 0.0
             continue
         bad = False
         for t in range(tgt_off[b], tgt_off[b + 1]):
@@ -403,6 +405,9 @@ def _update_kernel(active, o, tgt_off, tgt_neuron, tgt_act, tgt_mod, x, h, new, 
             if c > 1.0:
                 c = 1.0
             cmd[b, side] = np.nan if bad else c
+        if bad:
+            n_bad += 1
+    return n_bad
 
 
 def network_factory(specs: Sequence[NetworkSpec] | NetworkSpec) -> ControllerFactory:

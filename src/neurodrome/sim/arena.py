@@ -120,7 +120,6 @@ class Arena:
         self._contact_grid = ContactGrid(self._walls, self.radius)
 
         self._buf = pb.Buffer()
-        self._wbuf = pb.Buffer()
         self.live = np.ones(n, dtype=bool)
         self.state = np.zeros((n, 6))  # x, y, angle, vx, vy, w in global coordinates
         self._remap()
@@ -139,19 +138,21 @@ class Arena:
         self.shapes.append(circle)
 
     def _remap(self) -> None:
-        """Map live agents to their rows in pymunk's body order (found by BODY_ID); the
-        write buffer covers every row, the static body's included."""
+        """Map live agents to their rows in pymunk's body order (found by BODY_ID) and
+        set up the bulk buffers: the read buffer holds every row (the static body's
+        included), the write buffer covers every row as a set-buffer must."""
         self._buf.clear()
         pb.get_space_bodies(self.space, pb.BodyFields.BODY_ID, self._buf)
         ids = np.frombuffer(self._buf.int_buf(), dtype=np.uintp).copy()
         self._buf.clear()
-        self._live_idx = np.flatnonzero(self.live)
+        self._live_idx = np.flatnonzero(self.live).astype(np.int64)
         order = np.argsort(ids, kind="stable")
         wanted = self._body_ids[self._live_idx]
-        self._rows = order[np.searchsorted(ids[order], wanted)].astype(np.intp)
+        self._rows = order[np.searchsorted(ids[order], wanted)].astype(np.int64)
         self._nrows = len(ids)
-        self._write = np.zeros((self._nrows, 3), dtype=np.float64)
-        self._wbuf.set_float_buf(self._write.reshape(-1))
+        self._io = _BodyIO(self.space, self._nrows)
+        self._write = self._io.write
+        self._io.get()
 
     def retire(self, agents: np.ndarray) -> None:
         """Take finished agents out of the physics: their bodies leave the space and their
@@ -184,10 +185,8 @@ class Arena:
     # -- bulk state ---------------------------------------------------------------
     def read(self) -> np.ndarray:
         """Refresh ``state`` (N, 6) from the space in one bulk read."""
-        self._buf.clear()
-        pb.get_space_bodies(self.space, _READ, self._buf)
-        raw = np.frombuffer(self._buf.float_buf(), dtype=np.float64).reshape(self._nrows, 6)
-        self.state[self._live_idx] = raw[self._rows]
+        self._io.get()
+        self.state[self._live_idx] = self._io.read[self._rows]
         return self.state
 
     @property
@@ -203,28 +202,23 @@ class Arena:
         """Advance one control period with wheel commands ``wheels`` (N, 2) in [-1, 1].
 
         Each substep sets force and torque that bring the body to the exact-arc velocity of
-        the commanded wheels over the following step (see :func:`_drive_kernel`).
+        the commanded wheels over the following step (see :func:`_drive_kernel`), steps
+        the space, reads the bodies back and updates the wall contacts.
         """
         live = self._live_idx
         if not len(live):
             return
-        v_l = wheels[live, 0] * max_speed
-        v_r = wheels[live, 1] * max_speed
-        v = 0.5 * (v_l + v_r)
-        omega = (v_r - v_l) / wheel_base
+        io, g, dt = self._io, self._contact_grid, self.dt
+        wheels = np.ascontiguousarray(wheels, dtype=np.float64)
         for _ in range(self.substeps):
-            _drive_kernel(self.state[live], self._rows, v, omega, self.dt, self.mass, self.moment, self._write)
-            pb.set_space_bodies(self.space, _WRITE, self._wbuf)
-            self.space.step(self.dt)
-            self.read()
-            self.contacts()
-
-    def contacts(self) -> None:
-        """Update each live robot's touching walls from the current state; a wall that
-        enters a robot's set sets ``contact_begun`` (cleared by the caller)."""
-        g = self._contact_grid
-        _contact_kernel(self.state, self.origins, self._live_idx, self._walls, self.radius, g.x0, g.y0, g.cell,
-                        g.nx, g.ny, g.cell_start, g.cell_walls, self._touch, self._n_touch, self.contact_begun)
+            _drive_kernel(self.state, live, self._rows, wheels, max_speed, wheel_base, dt, self.mass, self.moment,
+                          self._write)
+            io.set()
+            io.step(dt)
+            io.get()
+            _contact_kernel(io.read, self._rows, self.state, self.origins, live, self._walls, self.radius, g.x0,
+                            g.y0, g.cell, g.nx, g.ny, g.cell_start, g.cell_walls, self._touch, self._n_touch,
+                            self.contact_begun)
 
     def place(self, agents: np.ndarray, positions: np.ndarray, angles: np.ndarray) -> None:
         """Put the given live agents at rest at local ``positions`` (K, 2), ``angles`` (K,),
@@ -236,46 +230,112 @@ class Arena:
         moves nothing and clears that correction.
         """
         agents = np.asarray(agents, dtype=np.intp)
+        if not len(agents):
+            return
         for k in agents[(self._n_touch[agents] > 0) | self.contact_begun[agents]].tolist():
             pymunk.Body.update_position(self.bodies[k], 0.0)
-        self._buf.clear()
-        pb.get_space_bodies(self.space, _READ, self._buf)
-        raw = np.frombuffer(self._buf.float_buf(), dtype=np.float64).reshape(self._nrows, 6).copy()
         slot = np.full(len(self.live), -1, dtype=np.intp)
         slot[self._live_idx] = self._rows
         rows = slot[agents]
+        raw = self._io.read  # every row as last read; nothing has moved since
         raw[rows, 0:2] = self.origins[agents] + positions
         raw[rows, 2] = angles
         raw[rows, 3:6] = 0.0
-        buffer = pb.Buffer()
-        buffer.set_float_buf(raw.reshape(-1))
-        pb.set_space_bodies(self.space, _READ, buffer)
-        self.read()
+        self._io.set_all()
+        self.state[agents] = raw[rows]
+
+
+class _BodyIO:
+    """Bulk body reads and writes of one Space through ``pymunk.batch``'s own C
+    iterators, with buffers and call records made once (the wrapper functions build them
+    on every call, which costs more than the copy at small batch sizes).
+
+    ``read`` (rows, 6) holds position, angle, velocity and angular velocity of every body
+    in pymunk's order after :meth:`get`; ``write`` (rows, 3) the force and torque that
+    :meth:`set` applies. :meth:`set_all` writes ``read`` back (poses and velocities).
+    """
+
+    def __init__(self, space: pymunk.Space, rows: int) -> None:
+        ffi, lib = pb.ffi, pb.lib
+        self._space = space
+        self._ptr = space._space
+        self._lib = lib
+        self._get_fn = ffi.addressof(lib, "pmSpaceBodyGetIteratorFuncBatched")
+        self._set_fn = ffi.addressof(lib, "pmSpaceBodySetIteratorFuncBatched")
+        # one spare slot: the C array grows (and moves) when a push fills it
+        self._rarr = lib.pmFloatArrayNew(rows * 6 + 1)
+        self._first = self._rarr.arr
+        self.read = np.frombuffer(ffi.buffer(self._rarr.arr, rows * 6 * 8), dtype=np.float64).reshape(rows, 6)
+        self._rdata = self._record(ffi, _READ, self._rarr)
+        self.write = np.zeros((rows, 3), dtype=np.float64)
+        self._warr = ffi.new("pmFloatArray *")
+        self._wmem = ffi.from_buffer("cpFloat[]", self.write)
+        self._warr.arr, self._warr.max, self._warr.num = self._wmem, rows * 3, 0
+        self._wdata = self._record(ffi, _WRITE, self._warr)
+        self._back = ffi.new("pmFloatArray *")
+        self._bmem = ffi.from_buffer("cpFloat[]", self.read)
+        self._back.arr, self._back.max, self._back.num = self._bmem, rows * 6, 0
+        self._bdata = self._record(ffi, _READ, self._back)
+
+    @staticmethod
+    def _record(ffi, fields, array):
+        data = ffi.new("pmBatchedData *")
+        data.fields = fields.value
+        data.floatArray = array
+        data.intArray = pb.lib.pmIntArrayNew(0)
+        return data
+
+    def get(self) -> None:
+        self._rarr.num = 0
+        self._lib.cpSpaceEachBody(self._ptr, self._get_fn, self._rdata)
+        if self._rarr.arr != self._first:  # pragma: no cover - guarded by the spare slot
+            raise RuntimeError("pymunk moved the bulk read buffer")
+
+    def set(self) -> None:
+        self._warr.num = 0
+        self._lib.cpSpaceEachBody(self._ptr, self._set_fn, self._wdata)
+
+    def set_all(self) -> None:
+        self._back.num = 0
+        self._lib.cpSpaceEachBody(self._ptr, self._set_fn, self._bdata)
+
+    def step(self, dt: float) -> None:
+        """``cpSpaceStep`` without pymunk's Python bookkeeping, which only serves
+        callbacks and objects added or removed during a step (the arena uses neither)."""
+        self._lib.cpSpaceStep(self._ptr, dt)
 
 
 @njit(cache=True, nogil=True)
-def _drive_kernel(state, rows, v, omega, dt, mass, moment, out):  # pragma: no cover - compiled
-    """Force and torque that take each body to the commanded motion over the next step.
+def _drive_kernel(state, live, rows, wheels, max_speed, wheel_base, dt, mass, moment, out):  # pragma: no cover
+    """Force and torque that take each live body to the commanded motion over the next step.
 
-    pymunk integrates positions with the velocity left by the previous step, then
-    integrates velocities with the forces, then solves contacts. So the velocity set now
-    moves the body during the *next* step, starting from heading angle + w dt. Over that
-    step the exact arc of a differential drive (Dudek & Jenkin; Siegwart et al., ch. 3)
-    is a chord of length v dt sinc(omega dt / 2) at heading + omega dt / 2; aiming the
-    velocity along that chord makes the path exact at every step in free space, while
-    contacts still act because the solver corrects the velocity after the force.
+    Wheel speeds v_l, v_r are the commands times ``max_speed``; v = (v_l + v_r) / 2 and
+    omega = (v_r - v_l) / wheel_base. pymunk integrates positions with the velocity left
+    by the previous step, then integrates velocities with the forces, then solves
+    contacts. So the velocity set now moves the body during the *next* step, starting from
+    heading angle + w dt. Over that step the exact arc of a differential drive (Dudek &
+    Jenkin; Siegwart et al., ch. 3) is a chord of length v dt sinc(omega dt / 2) at
+    heading + omega dt / 2; aiming the velocity along that chord makes the path exact at
+    every step in free space, while contacts still act because the solver corrects the
+    velocity after the force.
 
-    Compiled (numba): one pass over the agents, written straight into the bulk-write rows.
+    Compiled (numba): one pass over the live agents, written straight into the bulk-write
+    rows.
     """
-    for k in range(state.shape[0]):
-        half = 0.5 * omega[k] * dt
+    for q in range(live.shape[0]):
+        k = live[q]
+        v_l = wheels[k, 0] * max_speed
+        v_r = wheels[k, 1] * max_speed
+        v = 0.5 * (v_l + v_r)
+        omega = (v_r - v_l) / wheel_base
+        half = 0.5 * omega * dt
         sinc = math.sin(half) / half if abs(half) > 1e-12 else 1.0
         heading = state[k, 2] + state[k, 5] * dt + half
-        speed = v[k] * sinc
-        r = rows[k]
+        speed = v * sinc
+        r = rows[q]
         out[r, 0] = mass * (speed * math.cos(heading) - state[k, 3]) / dt
         out[r, 1] = mass * (speed * math.sin(heading) - state[k, 4]) / dt
-        out[r, 2] = moment * (omega[k] - state[k, 5]) / dt
+        out[r, 2] = moment * (omega - state[k, 5]) / dt
 
 
 #: Most walls one robot can touch at once that the contact kernel tracks; a robot touching
@@ -315,9 +375,10 @@ class ContactGrid:
 
 
 @njit(cache=True, nogil=True)
-def _contact_kernel(state, origins, live_idx, walls, radius, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls,
-                    touch, n_touch, begun):  # pragma: no cover - compiled
-    """pymunk's circle-to-segment contact test for every live robot and the walls near it.
+def _contact_kernel(raw, rows, state, origins, live_idx, walls, radius, gx0, gy0, gcell, gnx, gny, cell_start,
+                    cell_walls, touch, n_touch, begun):  # pragma: no cover - compiled
+    """Copy each live robot's row of the bulk read into ``state``, then pymunk's
+    circle-to-segment contact test for it and the walls near it.
 
     The arithmetic is Chipmunk's ``CircleToSegment`` on the same numbers pymunk holds: the
     segment ends as built (tile origin + local end), the body position as read; the
@@ -330,6 +391,8 @@ def _contact_kernel(state, origins, live_idx, walls, radius, gx0, gy0, gcell, gn
     scratch = np.empty(cap, dtype=np.int64)
     for q in range(live_idx.shape[0]):
         k = live_idx[q]
+        for f in range(6):
+            state[k, f] = raw[rows[q], f]
         px = state[k, 0]
         py = state[k, 1]
         ox = origins[k, 0]

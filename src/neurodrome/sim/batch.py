@@ -38,8 +38,7 @@ from ..world.geometry import Geometry, build_geometry
 from ..world.spec import WorldSpec
 from .arena import MAX_AGENTS, Arena
 from .seeding import CONTROLLER_STREAM, agent_generator, agent_key, normals
-from .sensors import WallGrid, Zones, ray_directions
-from ._cast_shim import cast_one, kernel_args as _shim_args  # TEMP
+from .sensors import WallGrid, Zones, cast_one, ray_directions
 from .task import CRASHED, NO_SITE, AgentResult, Phase, RelocationRecord, TrialRecord, draw_schedule
 
 _SENSOR_SALT = 1
@@ -52,6 +51,7 @@ _HOME, _REWARD, _BIAS, _DISC, _POLYGON = range(5)
 CRASH, ARRIVE, HOME, TIMEOUT, ENDED, FINISHED, STARTING, STALLED, RELOCATE = (1 << k for k in range(9))
 
 _NEVER = np.iinfo(np.int64).max
+_FINISHED = int(Phase.FINISHED)
 
 
 @dataclass(frozen=True)
@@ -79,6 +79,7 @@ class _Records:
     def __init__(self, n: int, trials: int) -> None:
         self.capacity = max(1, min(trials, 64))
         self.columns = {name: np.zeros((n, self.capacity), dtype=t) for name, t in self.FIELDS}
+        self.arrays = tuple(self.columns[name] for name, _ in self.FIELDS)  # in the kernel's order
 
     def ensure(self, trials_started: int) -> None:
         if trials_started > self.capacity:
@@ -88,9 +89,7 @@ class _Records:
                 wider[:, : self.capacity] = col
                 self.columns[name] = wider
             self.capacity = grow
-
-    def kernel_args(self) -> tuple:
-        return tuple(self.columns[name] for name, _ in self.FIELDS)
+            self.arrays = tuple(self.columns[name] for name, _ in self.FIELDS)
 
 
 class Batch:
@@ -130,7 +129,7 @@ class Batch:
         self.arena = Arena(spec, self.geometry, self.n)
         self.reach = robot.radius + robot.range_finders.max_range
         self.grid = WallGrid(self.geometry.walls, self.reach)
-        self._grid_args = _shim_args(self.grid)  # TEMP
+        self._grid_args = self.grid.kernel_args
         self.zones = Zones(spec)
         self.site_names = [s.name for s in spec.sites]
         self.ray_angles = np.radians(np.asarray(robot.range_finders.angles_deg, dtype=float))
@@ -139,9 +138,21 @@ class Batch:
         stall = spec.task.stall
         self._stall_distance = stall.distance if stall is not None else -1.0
         self._stall_steps = max(1, math.ceil(stall.seconds / self.control_period - 1e-9)) if stall is not None else 0
+        scoring = spec.task.scoring
+        self._fparams = np.array([scoring.crash_penalty, scoring.timeout_penalty, scoring.home_bonus,
+                                  self._stall_distance], dtype=np.float64)
+        self._iparams = np.array([int(scoring.crash_ends_trial), int(scoring.return_home),
+                                  spec.task.reward_signal_steps, self.step_limit, self._stall_steps, self.n_trials],
+                                 dtype=np.int64)
+        self._motor_noise = robot.motor_noise
+        self._sensor_noise = robot.range_finders.noise
+        self._max_speed, self._wheel_base = robot.max_wheel_speed, robot.wheel_base
+        self._radius, self._max_range = robot.radius, robot.range_finders.max_range
+        self._faulted_now = False
         self._plan_signals()
         # groups whose act() takes the active mask (compiled networks) skip finished agents
         self._fast = [bool(getattr(type(ctrl), "steps_active", False)) for _, ctrl in self.groups]
+        self._single_fast = len(self.groups) == 1 and self._fast[0]
         self.reset()
 
     # -- set-up -------------------------------------------------------------------
@@ -244,7 +255,7 @@ class Batch:
 
     @property
     def done(self) -> bool:
-        return bool((self.phase == Phase.FINISHED).all())
+        return not len(self.arena._live_idx) or bool((self.phase == _FINISHED).all())
 
     @property
     def records(self) -> list[list[TrialRecord]]:
@@ -271,19 +282,18 @@ class Batch:
     def observe(self) -> np.ndarray:
         """Refresh and return ``obs`` (N, C) for the live agents (finished agents keep
         their last observation); see :class:`Layout` for the channels."""
-        rf = self.spec.robot.range_finders
         arena = self.arena
-        _observe_kernel(arena.state, arena.origins, arena.live, self.ray_angles, self.reach, self.spec.robot.radius,
-                        rf.max_range, self._sig_kind, self._sig_centre, self._sig_r2, self.zones.home,
+        _observe_kernel(arena.state, arena.origins, arena.live, self.ray_angles, self.reach, self._radius,
+                        self._max_range, self._sig_kind, self._sig_centre, self._sig_r2, self.zones.home,
                         self.zones.home_r2, self.reward_timer, self.reward_value, self.ray_distances, self.obs,
                         *self._grid_args)
-        if rf.noise > 0 or self._polygons:
+        if self._sensor_noise > 0 or self._polygons:
             live = arena.live
             r = len(self.ray_angles)
-            if rf.noise > 0:
+            if self._sensor_noise > 0:
                 prox = self.obs[live, :r]
                 noise = normals(self._noise_keys[live], self.agent_steps[live], r, _SENSOR_SALT)
-                self.obs[live, :r] = np.clip(prox * (1.0 + rf.noise * noise), 0.0, 1.0)
+                self.obs[live, :r] = np.clip(prox * (1.0 + self._sensor_noise * noise), 0.0, 1.0)
             pos = self.positions[live]
             for channel, polygon in self._polygons:
                 self.obs[live, channel] = shapely.contains_xy(polygon, pos[:, 0], pos[:, 1])
@@ -293,28 +303,37 @@ class Batch:
     def step(self) -> list[Event]:
         """Advance every unfinished agent by one control step; returns this step's events."""
         self.events = []
-        active = self.phase != Phase.FINISHED
-        if not active.any():
-            return self.events
-        wheels = self._act(self.obs, active)
-        active = self.phase != Phase.FINISHED  # faults found while acting finish agents
-        wheels[~active] = 0.0
-        sigma = self.spec.robot.motor_noise
-        if sigma > 0:
-            wheels = np.clip(wheels * (1.0 + sigma * normals(self._noise_keys, self.agent_steps, 2, _MOTOR_SALT)), -1, 1)
-        self.wheels = wheels
         arena = self.arena
-        arena.contact_begun[:] = False
-        arena.step(wheels, self.spec.robot.max_wheel_speed, self.spec.robot.wheel_base)
+        if not len(arena._live_idx):  # unfinished agents are exactly the live ones here
+            return self.events
+        active = arena.live.copy()
+        wheels = self._act(self.obs, active)
+        if self._faulted_now:
+            active = self.phase != _FINISHED  # faults found while acting finish agents
+            wheels[~active] = 0.0
+        if self._motor_noise > 0:
+            noise = normals(self._noise_keys, self.agent_steps, 2, _MOTOR_SALT)
+            wheels = np.clip(wheels * (1.0 + self._motor_noise * noise), -1, 1)
+        self.wheels = wheels
+        arena.contact_begun.fill(False)
+        arena.step(wheels, self._max_speed, self._wheel_base)
         self.steps_taken += 1
-        self._score(active)
-        finished = (self.phase == Phase.FINISHED) & arena.live
-        if finished.any():
-            arena.retire(np.flatnonzero(finished))
+        if self._score(active):
+            finished = (self.phase == _FINISHED) & arena.live
+            if finished.any():
+                arena.retire(np.flatnonzero(finished))
         self.observe()
         return self.events
 
     def _act(self, obs: np.ndarray, active: np.ndarray) -> np.ndarray:
+        self._faulted_now = False
+        if self._single_fast:  # one compiled network group drives every agent
+            ctrl = self.groups[0][1]
+            out = ctrl.step_active(obs, active)  # type: ignore[attr-defined]
+            if ctrl.bad_count:  # type: ignore[attr-defined]
+                self._bad_commands(out, 0, active)
+                out = np.where(np.isfinite(out).all(axis=1)[:, None], out, 0.0)
+            return out.copy()
         wheels = np.zeros((self.n, 2))
         for (sl, ctrl), fast in zip(self.groups, self._fast):
             sub = active[sl]
@@ -323,6 +342,9 @@ class Batch:
             try:
                 if fast:  # a compiled network: steps only its active agents, never raises on NaN
                     out = ctrl.step_active(obs[sl], sub)  # type: ignore[attr-defined]
+                    if not ctrl.bad_count:  # type: ignore[attr-defined]
+                        wheels[sl] = out
+                        continue
                 else:
                     out = np.asarray(ctrl.act(obs[sl]), dtype=float)
                     if out.shape != (sl.stop - sl.start, 2):
@@ -332,36 +354,45 @@ class Batch:
                     if active[k]:
                         self._fault(k, f"controller raised {type(exc).__name__}: {exc}")
                 continue
-            bad = ~np.isfinite(out).all(axis=1)
-            if bad.any():
-                for k in (np.flatnonzero(bad) + sl.start).tolist():
-                    if active[k]:
-                        self._fault(k, f"non-finite wheel command {out[k - sl.start].tolist()}")
+            bad = self._bad_commands(out, sl.start, active)
+            if bad is not None:
                 out = np.where(bad[:, None], 0.0, out)
             wheels[sl] = out if fast else np.clip(out, -1.0, 1.0)
         return wheels
 
+    def _bad_commands(self, out: np.ndarray, first: int, active: np.ndarray) -> np.ndarray | None:
+        """Fault the active agents whose commands in ``out`` (rows from agent ``first``)
+        are not finite; returns the bad-row mask, or None when all are finite."""
+        bad = ~np.isfinite(out).all(axis=1)
+        if not bad.any():
+            return None
+        for k in (np.flatnonzero(bad) + first).tolist():
+            if active[k]:
+                self._fault(k, f"non-finite wheel command {out[k - first].tolist()}")
+        return bad
+
     def _fault(self, k: int, reason: str) -> None:
+        self._faulted_now = True
         self.faults[k] = reason
-        self.phase[k] = Phase.FINISHED
+        self.phase[k] = _FINISHED
         self.events.append(Event(k, "fault", int(self.trial[k]), {"reason": reason}))
 
-    def _score(self, active: np.ndarray) -> None:
+    def _score(self, active: np.ndarray) -> bool:
+        """Advance the trial machines; True when something happened that may finish an agent."""
         scoring = self.spec.task.scoring
         arena = self.arena
         flags = self._flags
+        records = self._records
         summary, most = _trial_kernel(
             active, arena.contact_begun, arena.state, arena.origins, self.zones.site_pos, self.zones.site_r2,
-            self.zones.home, self.zones.home_r2, self.site_values, scoring.crash_penalty, scoring.crash_ends_trial,
-            scoring.timeout_penalty, scoring.return_home, scoring.home_bonus, self.spec.task.reward_signal_steps,
-            self.step_limit, self._stall_distance, self._stall_steps, self.n_trials, self._next_relocation,
-            self.phase, self.trial, self.steps_in_trial, self.agent_steps, self.crashes, self.fitness,
-            self.trial_score, self.site_reached, self.collected, self.reward_value, self.reward_timer,
-            self.settle_timer, self.returned, self._anchor, self._anchor_step, flags, self._records.capacity,
-            *self._records.kernel_args(),
+            self.zones.home, self.zones.home_r2, self.site_values, self._fparams, self._iparams,
+            self._next_relocation, self.phase, self.trial, self.steps_in_trial, self.agent_steps, self.crashes,
+            self.fitness, self.trial_score, self.site_reached, self.collected, self.reward_value,
+            self.reward_timer, self.settle_timer, self.returned, self._anchor, self._anchor_step, flags,
+            records.capacity, *records.arrays,
         )
         if summary == 0:
-            return
+            return self._faulted_now
         if self.record_events:
             self._emit(flags)
         elif summary & RELOCATE:
@@ -375,6 +406,7 @@ class Batch:
             if self.record_events:
                 for k in np.flatnonzero(starting).tolist():
                     self.events.append(Event(k, "trial-start", int(self.trial[k]), {}))
+        return bool(summary & FINISHED) or self._faulted_now
 
     def _emit(self, flags: np.ndarray) -> None:
         """This step's events in the order the viewer and replays expect: crashes, sites,
@@ -521,9 +553,8 @@ def _observe_kernel(state, origins, live, ray_angles, reach, radius, max_range, 
 
 
 @njit(cache=True, nogil=True)
-def _trial_kernel(active, begun, state, origins, site_pos, site_r2, home, home_r2, site_values, crash_penalty,
-                  crash_ends_trial, timeout_penalty, return_home, home_bonus, hold, step_limit, stall_distance,
-                  stall_steps, n_trials, next_relocation, phase, trial, steps_in_trial, agent_steps, crashes, fitness,
+def _trial_kernel(active, begun, state, origins, site_pos, site_r2, home, home_r2, site_values, fparams, iparams,
+                  next_relocation, phase, trial, steps_in_trial, agent_steps, crashes, fitness,
                   trial_score, site_reached, collected, reward_value, reward_timer, settle_timer, returned, anchor,
                   anchor_step, flags, capacity, r_site, r_value, r_crashes, r_returned, r_timed_out, r_stalled,
                   r_steps, r_score, r_end_x, r_end_y, r_outcome):  # pragma: no cover - compiled
@@ -537,6 +568,9 @@ def _trial_kernel(active, begun, state, origins, site_pos, site_r2, home, home_r
     ended trial is recorded; the agent finishes after its last trial, otherwise its
     per-trial state restarts and ``STARTING`` asks the caller to put it at home.
     Returns (the OR of all flags, the highest trial number now started)."""
+    crash_penalty, timeout_penalty, home_bonus, stall_distance = fparams[0], fparams[1], fparams[2], fparams[3]
+    crash_ends_trial, return_home = iparams[0] != 0, iparams[1] != 0
+    hold, step_limit, stall_steps, n_trials = iparams[2], iparams[3], iparams[4], iparams[5]
     summary = 0
     most = 0
     S = site_pos.shape[0]

@@ -1,63 +1,151 @@
 """Vectorised range finders and zone signals.
 
-Walls are static, so range finders are a batched ray/segment intersection over
-(agents x rays x nearby walls) in numpy, in world-file coordinates. A uniform grid of
-cells lists, for each cell, every wall within one ray length of the cell; an agent only
-tests the walls of the cell it stands in, so large mazes stay cheap. Results agree with
-pymunk's ``Space.segment_query_first`` and with shapely (see the tests). The inner loop is
-one small compiled kernel (numba): in numpy it cost several times the physics step.
+Walls are static, so range finders are ray/segment intersections in world-file
+coordinates. The walls are bucketed in a uniform grid sized from the walls themselves
+(cell side about the median wall length, bounded so the grid stays small); each cell lists
+the walls that touch it, and a ray walks the cells it crosses in order, stopping as soon
+as its nearest hit so far lies no farther than where it leaves the current cell. Its cost
+therefore depends on the walls near the ray, not on the size of the maze. Results agree
+with pymunk's ``Space.segment_query_first`` and with shapely, and are bit-identical to
+testing every wall with the same formula (see the tests). The ray cast is one small
+compiled kernel (numba), :func:`cast_one`, which other compiled kernels may call.
 """
 
 from __future__ import annotations
 
+from functools import cached_property
+
 import numpy as np
 import shapely
 from numba import njit
-from shapely.geometry import LineString, box
 
 from ..world.spec import WorldSpec
 
+#: Each cell lists the walls that touch its box grown by this much on every side
+#: (metres). It absorbs the rounding of the cell walk and of the hit formula (both of the
+#: order of 1e-16 times the coordinates), so coordinates up to about 1e6 m are safe.
+CELL_TOLERANCE = 1e-6
+#: The grid extends this far (metres) beyond the walls' bounding box on every side.
+GRID_MARGIN = 1e-3
+#: Cell side as a multiple of the median wall length, before the bounds below.
+CELL_PER_WALL_LENGTH = 1.0
+#: The grid holds at most max(MIN_CELL_CAP, CELLS_PER_WALL * walls) cells.
+CELLS_PER_WALL = 8
+MIN_CELL_CAP = 256
+
 
 class WallGrid:
-    """Walls bucketed in a uniform grid; each cell lists the walls a ray from it can hit.
+    """Walls bucketed in a uniform grid, stored flat (compressed sparse rows).
 
-    ``candidates`` has shape (cells, K): wall indices padded with a degenerate wall that
-    never reports a hit.
+    Cell (i, j), 0 <= i < nx, 0 <= j < ny, is the box [x0 + i cell, x0 + (i + 1) cell] x
+    [y0 + j cell, y0 + (j + 1) cell] and has index c = j nx + i; its walls are
+    ``cell_walls[cell_start[c]:cell_start[c + 1]]`` (ascending wall indices), every wall
+    that touches the box grown by ``CELL_TOLERANCE``. ``start`` (W, 2) and ``edge`` (W, 2)
+    are each wall's first end point and its vector to the second.
+
+    The cell side is ``cell`` when given, otherwise ``CELL_PER_WALL_LENGTH`` times the
+    median wall length, at most ``reach`` (the longest ray) and at least what keeps the
+    grid within ``max(MIN_CELL_CAP, CELLS_PER_WALL * W)`` cells. ``reach`` no longer
+    shapes the grid otherwise; it is kept for callers.
     """
 
     def __init__(self, walls: np.ndarray, reach: float, cell: float | None = None) -> None:
-        walls = np.asarray(walls, dtype=np.float64).reshape(-1, 4)
+        walls = np.ascontiguousarray(np.asarray(walls, dtype=np.float64).reshape(-1, 4))
         self.reach = float(reach)
-        xs = np.concatenate([walls[:, 0], walls[:, 2]])
-        ys = np.concatenate([walls[:, 1], walls[:, 3]])
-        pad = self.reach + 1.0
-        self.x0, self.y0 = float(xs.min() - pad), float(ys.min() - pad)
-        width, height = float(xs.max() + pad) - self.x0, float(ys.max() + pad) - self.y0
-        self.cell = float(cell) if cell else max(self.reach, 0.25)
+        self.walls = walls
+        # One extra row, index W, is a sentinel wall with a zero edge that never reports a
+        # hit (it pads ``candidates``); kernel_args passes the first W rows only.
+        self.start = np.zeros((len(walls) + 1, 2))
+        self.edge = np.zeros((len(walls) + 1, 2))
+        self.start[:-1] = walls[:, 0:2]
+        self.edge[:-1] = walls[:, 2:4] - walls[:, 0:2]
+        # A wall with a zero edge never reports a hit (its denominator is 0 for every ray),
+        # so it is left out of the cells.
+        live = np.flatnonzero((self.edge[:-1, 0] != 0.0) | (self.edge[:-1, 1] != 0.0))
+        if len(live):
+            xs = np.concatenate([walls[live, 0], walls[live, 2]])
+            ys = np.concatenate([walls[live, 1], walls[live, 3]])
+            lo_x, hi_x, lo_y, hi_y = float(xs.min()), float(xs.max()), float(ys.min()), float(ys.max())
+        else:
+            lo_x = hi_x = lo_y = hi_y = 0.0
+        self.x0, self.y0 = lo_x - GRID_MARGIN, lo_y - GRID_MARGIN
+        width, height = hi_x + GRID_MARGIN - self.x0, hi_y + GRID_MARGIN - self.y0
+        self.cell = float(cell) if cell else self._auto_cell(live, width, height)
         self.nx = max(1, int(np.ceil(width / self.cell)))
         self.ny = max(1, int(np.ceil(height / self.cell)))
-        lines = shapely.STRtree([LineString([(w[0], w[1]), (w[2], w[3])]) for w in walls])
-        buckets = []
-        for j in range(self.ny):
-            for i in range(self.nx):
-                x, y = self.x0 + i * self.cell, self.y0 + j * self.cell
-                area = box(x, y, x + self.cell, y + self.cell).buffer(self.reach, join_style="mitre")
-                buckets.append(np.sort(lines.query(area, predicate="intersects")))
-        k = max(1, max(len(b) for b in buckets))
-        dummy = len(walls)
-        self.candidates = np.full((len(buckets), k), dummy, dtype=np.intp)
-        for c, b in enumerate(buckets):
-            self.candidates[c, : len(b)] = b
-        far = np.array([[1e9, 1e9, 1e9, 1e9]])
-        self.walls = np.vstack([walls, far])
-        self.start = self.walls[:, 0:2]
-        self.edge = self.walls[:, 2:4] - self.walls[:, 0:2]
+        self.cell_start, self.cell_walls = self._bucket(live)
+
+    def _auto_cell(self, live: np.ndarray, width: float, height: float) -> float:
+        if not len(live):
+            return max(width, height)
+        lengths = np.hypot(self.edge[live, 0], self.edge[live, 1])
+        side = CELL_PER_WALL_LENGTH * float(np.median(lengths))
+        if self.reach > 0:
+            side = min(side, self.reach)
+        side = max(side, 1e-9 * max(width, height))
+        cap = max(MIN_CELL_CAP, CELLS_PER_WALL * len(live))
+        while int(np.ceil(width / side)) * int(np.ceil(height / side)) > cap:
+            side *= 1.25
+        return side
+
+    def _bucket(self, live: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        n_cells = self.nx * self.ny
+        if not len(live):
+            return np.zeros(n_cells + 1, dtype=np.intp), np.zeros(0, dtype=np.intp)
+        i = np.tile(np.arange(self.nx), self.ny)
+        j = np.repeat(np.arange(self.ny), self.nx)
+        # The same expressions as the cell walk in cast_one, so both see the same boxes.
+        xa, xb = self.x0 + i * self.cell, self.x0 + (i + 1) * self.cell
+        ya, yb = self.y0 + j * self.cell, self.y0 + (j + 1) * self.cell
+        boxes = shapely.box(xa - CELL_TOLERANCE, ya - CELL_TOLERANCE, xb + CELL_TOLERANCE, yb + CELL_TOLERANCE)
+        w = self.walls[live]
+        lines = shapely.linestrings(np.stack([w[:, 0:2], w[:, 2:4]], axis=1))
+        cells, found = shapely.STRtree(lines).query(boxes, predicate="intersects")
+        found = live[found]
+        order = np.lexsort((found, cells))
+        cell_walls = np.ascontiguousarray(found[order], dtype=np.intp)
+        counts = np.bincount(cells, minlength=n_cells)
+        cell_start = np.zeros(n_cells + 1, dtype=np.intp)
+        np.cumsum(counts, out=cell_start[1:])
+        return cell_start, cell_walls
+
+    @property
+    def kernel_args(self) -> tuple:
+        """``(gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge)``: the grid as
+        :func:`cast_one` takes it (floats, ints, contiguous intp and float64 arrays)."""
+        w = len(self.walls)
+        return (self.x0, self.y0, self.cell, self.nx, self.ny, self.cell_start, self.cell_walls, self.start[:w], self.edge[:w])
+
+    @cached_property
+    def candidates(self) -> np.ndarray:
+        """TRANSITIONAL, for ``sim/_cast_shim.py`` only (remove with it): the previous
+        layout, (cells, K) indices of every wall within ``reach`` of each cell of this grid,
+        padded with the sentinel wall W. Built on first use."""
+        n_cells = self.nx * self.ny
+        i = np.tile(np.arange(self.nx), self.ny)
+        j = np.repeat(np.arange(self.ny), self.nx)
+        xa, ya = self.x0 + i * self.cell, self.y0 + j * self.cell
+        areas = shapely.buffer(shapely.box(xa, ya, xa + self.cell, ya + self.cell), self.reach, join_style="mitre")
+        lines = shapely.linestrings(np.stack([self.walls[:, 0:2], self.walls[:, 2:4]], axis=1))
+        cells, found = shapely.STRtree(lines).query(areas, predicate="intersects") if len(lines) else (np.zeros(0, np.intp),) * 2
+        counts = np.bincount(cells, minlength=n_cells)
+        out = np.full((n_cells, max(1, int(counts.max(initial=0)))), len(self.walls), dtype=np.intp)
+        order = np.lexsort((found, cells))
+        cells, found = cells[order], found[order]
+        first = np.zeros(n_cells + 1, dtype=np.intp)
+        np.cumsum(counts, out=first[1:])
+        out[cells, np.arange(len(cells)) - first[cells]] = found
+        return out
 
     def cells_of(self, points: np.ndarray) -> np.ndarray:
         """(N,) cell index of each point (N, 2), clamped to the grid."""
-        i = np.clip(((points[:, 0] - self.x0) // self.cell).astype(np.intp), 0, self.nx - 1)
-        j = np.clip(((points[:, 1] - self.y0) // self.cell).astype(np.intp), 0, self.ny - 1)
+        i = np.clip(np.floor((points[:, 0] - self.x0) / self.cell), 0, self.nx - 1).astype(np.intp)
+        j = np.clip(np.floor((points[:, 1] - self.y0) / self.cell), 0, self.ny - 1).astype(np.intp)
         return j * self.nx + i
+
+    def walls_in(self, c: int) -> np.ndarray:
+        """Indices of the walls listed in cell ``c``."""
+        return self.cell_walls[self.cell_start[c] : self.cell_start[c + 1]]
 
 
 def ray_directions(angles: np.ndarray, ray_angles: np.ndarray) -> np.ndarray:
@@ -72,43 +160,129 @@ def cast_rays(grid: WallGrid, origins: np.ndarray, headings: np.ndarray, ray_ang
     origins (N, 2), headings (N,) and ray_angles (R,) in radians -> (N, R). Ray r of agent
     i is the segment origin + t d, d = (cos, sin)(heading + ray angle), 0 <= t <= length;
     a wall a + u e, 0 <= u <= 1, is hit where the 2D cross products give t and u in range
-    (common practice: parametric line intersection).
+    (common practice: parametric line intersection). Each ray is :func:`cast_one`.
     """
-    origins = np.ascontiguousarray(origins, dtype=np.float64)
-    headings = np.ascontiguousarray(headings, dtype=np.float64)
-    ray_angles = np.ascontiguousarray(ray_angles, dtype=np.float64)
+    origins = np.ascontiguousarray(origins, dtype=np.float64).reshape(-1, 2)
+    headings = np.ascontiguousarray(headings, dtype=np.float64).reshape(-1)
+    ray_angles = np.ascontiguousarray(ray_angles, dtype=np.float64).reshape(-1)
     out = np.empty((len(origins), len(ray_angles)))
-    _cast_kernel(origins, headings, ray_angles, grid.candidates, grid.cells_of(origins), grid.start, grid.edge, float(length), out)
+    _cast_all(origins, headings, ray_angles, float(length), *grid.kernel_args, out)
     return out
 
 
 @njit(cache=True, nogil=True)
-def _cast_kernel(origins, headings, ray_angles, candidates, cells, start, edge, length, out):  # pragma: no cover - compiled
-    n, r = origins.shape[0], ray_angles.shape[0]
-    k = candidates.shape[1]
-    for i in range(n):
+def _cast_all(origins, headings, ray_angles, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge, out):  # pragma: no cover - compiled
+    for i in range(origins.shape[0]):
         px = origins[i, 0]
         py = origins[i, 1]
-        row = candidates[cells[i]]
-        for j in range(r):
+        for j in range(ray_angles.shape[0]):
             theta = headings[i] + ray_angles[j]
-            dx = np.cos(theta)
-            dy = np.sin(theta)
-            best = np.inf
-            for m in range(k):
-                w = row[m]
-                ex = edge[w, 0]
-                ey = edge[w, 1]
-                denom = dx * ey - dy * ex
-                if denom == 0.0:
-                    continue
-                apx = start[w, 0] - px
-                apy = start[w, 1] - py
-                t = (apx * ey - apy * ex) / denom
-                u = (apx * dy - apy * dx) / denom
-                if u >= 0.0 and u <= 1.0 and t >= 0.0 and t <= length and t < best:
-                    best = t
-            out[i, j] = best
+            out[i, j] = cast_one(px, py, theta, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge)
+
+
+@njit(cache=True, nogil=True)
+def cast_one(px, py, theta, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge):  # pragma: no cover - compiled
+    """Distance along the ray from (px, py) at angle ``theta`` to the nearest wall within
+    ``length``, ``inf`` when there is none; the grid as :attr:`WallGrid.kernel_args` gives it.
+
+    The ray walks the cells it crosses in order (the grid traversal of Amanatides & Woo
+    1987, "A fast voxel traversal algorithm for ray tracing", Eurographics [from memory]),
+    tests each listed wall with the parametric formula below and stops once the nearest
+    hit so far is no farther than the current cell's exit. The nearest hit lies in a cell
+    the walk has visited by then, so the result is the minimum of the formula over every
+    wall, as if all were tested: the order of the tests and repeated tests do not change
+    a minimum. (Rounding of the walk and of the formula is orders of magnitude below the
+    cells' tolerance.) An origin outside the grid starts where the ray enters it; a ray
+    that never enters it within ``length`` hits nothing, since every wall is inside.
+    """
+    dx = np.cos(theta)
+    dy = np.sin(theta)
+    best = np.inf
+    if not (abs(px) < np.inf and abs(py) < np.inf and abs(dx) <= 1.0 and abs(dy) <= 1.0):
+        return best  # NaN or infinite input: the formula accepts no wall either
+    gx1 = gx0 + gnx * gcell
+    gy1 = gy0 + gny * gcell
+    t_out = length
+    if px >= gx0 and px <= gx1 and py >= gy0 and py <= gy1:
+        qx = px
+        qy = py
+    else:  # start where the ray [0, length] enters the grid's box (slab test)
+        t_in = 0.0
+        if dx != 0.0:
+            ta = (gx0 - px) / dx
+            tb = (gx1 - px) / dx
+            t_in = max(t_in, min(ta, tb))
+            t_out = min(t_out, max(ta, tb))
+        elif not (px >= gx0 and px <= gx1):
+            return best
+        if dy != 0.0:
+            ta = (gy0 - py) / dy
+            tb = (gy1 - py) / dy
+            t_in = max(t_in, min(ta, tb))
+            t_out = min(t_out, max(ta, tb))
+        elif not (py >= gy0 and py <= gy1):
+            return best
+        if not (t_in <= t_out):
+            return best
+        qx = px + t_in * dx
+        qy = py + t_in * dy
+    ci = min(max(int(np.floor((qx - gx0) / gcell)), 0), gnx - 1)
+    cj = min(max(int(np.floor((qy - gy0) / gcell)), 0), gny - 1)
+    # Per axis: the step, the side of the cell the ray leaves by (0 low, 1 high) and the
+    # ray parameter tx / ty where it crosses that side of the current cell.
+    step_x = 0
+    side_x = 0
+    inv_x = 0.0
+    tx = np.inf
+    if dx > 0.0:
+        step_x = 1
+        side_x = 1
+    elif dx < 0.0:
+        step_x = -1
+    if step_x != 0:
+        inv_x = 1.0 / dx
+        tx = (gx0 + (ci + side_x) * gcell - px) * inv_x
+    step_y = 0
+    side_y = 0
+    inv_y = 0.0
+    ty = np.inf
+    if dy > 0.0:
+        step_y = 1
+        side_y = 1
+    elif dy < 0.0:
+        step_y = -1
+    if step_y != 0:
+        inv_y = 1.0 / dy
+        ty = (gy0 + (cj + side_y) * gcell - py) * inv_y
+    while True:
+        c = cj * gnx + ci
+        for k in range(cell_start[c], cell_start[c + 1]):
+            w = cell_walls[k]
+            ex = edge[w, 0]
+            ey = edge[w, 1]
+            denom = dx * ey - dy * ex
+            if denom == 0.0:
+                continue
+            apx = start[w, 0] - px
+            apy = start[w, 1] - py
+            t = (apx * ey - apy * ex) / denom
+            u = (apx * dy - apy * dx) / denom
+            if u >= 0.0 and u <= 1.0 and t >= 0.0 and t <= length and t < best:
+                best = t
+        if tx < ty:  # the ray leaves through an x side at tx
+            if best <= tx or tx >= t_out:
+                return best
+            ci += step_x
+            if ci < 0 or ci >= gnx:
+                return best
+            tx = (gx0 + (ci + side_x) * gcell - px) * inv_x
+        else:
+            if best <= ty or ty >= t_out:
+                return best
+            cj += step_y
+            if cj < 0 or cj >= gny:
+                return best
+            ty = (gy0 + (cj + side_y) * gcell - py) * inv_y
 
 
 def proximity(distance_from_centre: np.ndarray, body_radius: float, max_range: float) -> np.ndarray:
