@@ -1,7 +1,7 @@
 """Range-finder cost per ray cast against maze size: the 12-wall clinic junction against a
 curved maze of about 1000 walls, before and after the cell-walk grid.
 
-Usage:  python benchmarks/maze_size.py [--robots 1000] [--repeats 30] [--points 500]
+Usage:  python benchmarks/maze_size.py [--robots 1000] [--rounds 40] [--points 500]
 
 The big maze is a corridor 0.5 m wide following an Archimedean spiral (4 turns, radius
 0.8 m growing 1 m per turn) sampled at ``--points`` points (500 give 1000 walls), built
@@ -9,9 +9,10 @@ as a world dict from the junction template and through ``build_geometry``, so it
 are exactly what the simulator would use. Poses are uniform in each world's free space
 eroded by the robot radius, headings uniform; rays are the world's 8 range finders, of
 length radius + max range. "before" is a copy of the previous kernel and grid (labelled
-below, kept here only for this comparison), "after" is ``neurodrome.sim.sensors``.
-Both are checked to give bit-identical distances before they are timed. Figures are
-printed, never asserted.
+below, kept here only for this comparison), "after" is ``neurodrome.sim.sensors.cast_rays``
+and "called" is ``cast_one`` called (not inlined) once per ray from another compiled
+kernel. All three are checked to give bit-identical distances before they are timed.
+Figures are printed, never asserted.
 """
 
 from __future__ import annotations
@@ -26,7 +27,7 @@ import shapely
 from numba import njit
 from shapely.geometry import LineString, Point, box
 
-from neurodrome.sim.sensors import WallGrid, cast_rays
+from neurodrome.sim.sensors import WallGrid, cast_one, cast_rays
 from neurodrome.world import build_geometry, load_world, world_from_data
 from neurodrome.world.templates import make
 
@@ -131,27 +132,32 @@ def _old_cast_kernel(origins, headings, ray_angles, candidates, cells, start, ed
 # ---- end of BEFORE ----
 
 
-def ns_per_ray(fn, grid, pos, ang, rays, reach, repeats):
-    fn(grid, pos, ang, rays, reach)  # compile and warm caches outside the timing
-    best = math.inf
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn(grid, pos, ang, rays, reach)
-        best = min(best, time.perf_counter() - t0)
-    return 1e9 * best / (len(pos) * len(rays))
+@njit(nogil=True)
+def _called_per_ray(origins, headings, ray_angles, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge, out):
+    """cast_one called (not inlined) once per ray, as another kernel would call it."""
+    for i in range(origins.shape[0]):
+        for j in range(ray_angles.shape[0]):
+            theta = headings[i] + ray_angles[j]
+            out[i, j] = cast_one(origins[i, 0], origins[i, 1], theta, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge)
+
+
+def called_per_ray(grid, pos, ang, rays, reach):
+    out = np.empty((len(pos), len(rays)))
+    _called_per_ray(pos, ang, rays, float(reach), *grid.kernel_args, out)
+    return out
 
 
 def main(argv: list[str] | None = None) -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--robots", type=int, default=1000)
-    parser.add_argument("--repeats", type=int, default=30, help="timed calls per figure; the fastest is kept")
+    parser.add_argument("--rounds", type=int, default=40, help="timed rounds; each figure is the fastest call")
     parser.add_argument("--points", type=int, default=500, help="points of the spiral's centre line")
     parser.add_argument("--seed", type=int, default=0)
     args = parser.parse_args(argv)
 
     worlds = [("clinic junction", load_world(ROOT / "worlds" / "clinic-junction.json")), ("spiral maze", spiral_maze(args.points))]
     rng = np.random.default_rng(args.seed)
-    rows = []
+    cases, info = {}, {}
     for label, world in worlds:
         geometry = build_geometry(world)
         robot = world.robot
@@ -159,22 +165,31 @@ def main(argv: list[str] | None = None) -> None:
         rays = np.radians(np.asarray(robot.range_finders.angles_deg, dtype=float))
         pos, ang = random_poses(geometry, args.robots, rng, robot.radius)
         old, new = OldWallGrid(geometry.walls, reach), WallGrid(geometry.walls, reach)
-        a, b = old_cast_rays(old, pos, ang, rays, reach), cast_rays(new, pos, ang, rays, reach)
-        same = bool(np.array_equal(a, b))
-        before = ns_per_ray(old_cast_rays, old, pos, ang, rays, reach, args.repeats)
-        after = ns_per_ray(cast_rays, new, pos, ang, rays, reach, args.repeats)
-        per_cell = np.diff(new.cell_start)
-        rows.append((label, len(geometry.walls), old.candidates.shape[1], new, per_cell, before, after, same))
+        a, b, c = old_cast_rays(old, pos, ang, rays, reach), cast_rays(new, pos, ang, rays, reach), called_per_ray(new, pos, ang, rays, reach)
+        info[label] = (len(geometry.walls), old.candidates.shape[1], new, bool(np.array_equal(a, b) and np.array_equal(b, c)))
+        for name, fn, grid in (("before", old_cast_rays, old), ("after", cast_rays, new), ("called", called_per_ray, new)):
+            cases[label, name] = (lambda fn=fn, grid=grid, pos=pos, ang=ang, rays=rays, reach=reach: fn(grid, pos, ang, rays, reach))
+    best = dict.fromkeys(cases, math.inf)
+    for _ in range(args.rounds):  # interleaved, so a burst of other load hits every case alike
+        for key, run in cases.items():
+            t0 = time.perf_counter()
+            run()
+            best[key] = min(best[key], time.perf_counter() - t0)
+    ns = {key: 1e9 * t / (args.robots * 8) for key, t in best.items()}
 
-    print(f"{args.robots} robots x {len(rays)} rays at random free-space poses; ns per ray cast (fastest of {args.repeats} calls)")
-    print(f"{'world':<16} {'walls':>6} {'old K':>6} {'new grid':>15} {'walls/cell':>11} {'before':>8} {'after':>8} {'identical':>10}")
-    for label, w, k, new, per_cell, before, after, same in rows:
-        occupied = per_cell[per_cell > 0]
+    print(f"{args.robots} robots x 8 rays at random free-space poses; ns per ray cast, fastest of {args.rounds} interleaved rounds")
+    print("before: previous grid and kernel (copy above); after: cast_rays; called: cast_one called per ray from another kernel")
+    print(f"{'world':<16} {'walls':>6} {'old K':>6} {'new grid':>16} {'walls/cell':>11} {'before':>8} {'after':>8} {'called':>8} {'identical':>10}")
+    for label, _ in worlds:
+        w, k, new, same = info[label]
+        per_cell = np.diff(new.cell_start)
         grid = f"{new.nx}x{new.ny} @{new.cell:.3f}"
-        print(f"{label:<16} {w:>6} {k:>6} {grid:>15} {occupied.mean():>5.1f} /{per_cell.max():>3} {before:>8.1f} {after:>8.1f} {str(same):>10}")
-    (_, _, _, _, _, jb, ja, _), (_, _, _, _, _, mb, ma, _) = rows
-    print(f"maze / junction cost per ray: before {mb / jb:.2f}x, after {ma / ja:.2f}x")
-    print(f"after / before: junction {ja / jb:.2f}x, maze {ma / mb:.2f}x")
+        occupied = f"{per_cell[per_cell > 0].mean():.1f} / {per_cell.max()}"
+        print(f"{label:<16} {w:>6} {k:>6} {grid:>16} {occupied:>11} {ns[label, 'before']:>8.1f} {ns[label, 'after']:>8.1f} {ns[label, 'called']:>8.1f} {str(same):>10}")
+    j, m = "clinic junction", "spiral maze"
+    print(f"maze / junction per ray: before {ns[m, 'before'] / ns[j, 'before']:.2f}x, after {ns[m, 'after'] / ns[j, 'after']:.2f}x "
+          f"(after maze / before junction {ns[m, 'after'] / ns[j, 'before']:.2f}x)")
+    print(f"after / before: junction {ns[j, 'after'] / ns[j, 'before']:.2f}x, maze {ns[m, 'after'] / ns[m, 'before']:.2f}x")
 
 
 if __name__ == "__main__":

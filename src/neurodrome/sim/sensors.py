@@ -2,7 +2,7 @@
 
 Walls are static, so range finders are ray/segment intersections in world-file
 coordinates. The walls are bucketed in a uniform grid sized from the walls themselves
-(cell side about the median wall length, bounded so the grid stays small); each cell lists
+(cell side 1.5 times the median wall length, bounded so the grid stays small); each cell lists
 the walls that touch it, and a ray walks the cells it crosses in order, stopping as soon
 as its nearest hit so far lies no farther than where it leaves the current cell. Its cost
 therefore depends on the walls near the ray, not on the size of the maze. Results agree
@@ -28,7 +28,7 @@ CELL_TOLERANCE = 1e-6
 #: The grid extends this far (metres) beyond the walls' bounding box on every side.
 GRID_MARGIN = 1e-3
 #: Cell side as a multiple of the median wall length, before the bounds below.
-CELL_PER_WALL_LENGTH = 1.0
+CELL_PER_WALL_LENGTH = 1.5
 #: The grid holds at most max(MIN_CELL_CAP, CELLS_PER_WALL * walls) cells.
 CELLS_PER_WALL = 8
 MIN_CELL_CAP = 256
@@ -171,29 +171,25 @@ def cast_rays(grid: WallGrid, origins: np.ndarray, headings: np.ndarray, ray_ang
 
 
 @njit(cache=True, nogil=True)
-def _cast_all(origins, headings, ray_angles, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge, out):  # pragma: no cover - compiled
-    for i in range(origins.shape[0]):
-        px = origins[i, 0]
-        py = origins[i, 1]
-        for j in range(ray_angles.shape[0]):
-            theta = headings[i] + ray_angles[j]
-            out[i, j] = cast_one(px, py, theta, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge)
-
-
-@njit(cache=True, nogil=True)
 def cast_one(px, py, theta, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge):  # pragma: no cover - compiled
     """Distance along the ray from (px, py) at angle ``theta`` to the nearest wall within
     ``length``, ``inf`` when there is none; the grid as :attr:`WallGrid.kernel_args` gives it.
 
     The ray walks the cells it crosses in order (the grid traversal of Amanatides & Woo
-    1987, "A fast voxel traversal algorithm for ray tracing", Eurographics [from memory]),
-    tests each listed wall with the parametric formula below and stops once the nearest
-    hit so far is no farther than the current cell's exit. The nearest hit lies in a cell
-    the walk has visited by then, so the result is the minimum of the formula over every
-    wall, as if all were tested: the order of the tests and repeated tests do not change
-    a minimum. (Rounding of the walk and of the formula is orders of magnitude below the
-    cells' tolerance.) An origin outside the grid starts where the ray enters it; a ray
-    that never enters it within ``length`` hits nothing, since every wall is inside.
+    1987, "A fast voxel traversal algorithm for ray tracing", Eurographics [from memory]:
+    tx, ty are the ray parameters of the next x and y cell sides, advanced by dtx, dty
+    per step), tests each listed wall with the parametric formula below and stops once
+    the nearest hit so far is no farther than the current cell's exit. The nearest hit
+    lies in a cell the walk has visited by then, so the result is the minimum of the
+    formula over every wall, as if all were tested: the order of the tests and repeated
+    tests do not change a minimum. (The rounding of the walk, about 1e-16 times the
+    coordinates per step, is far below ``CELL_TOLERANCE``.) An origin outside the grid
+    starts where the ray enters it; a ray that never enters it within ``length`` hits
+    nothing, since every wall is inside.
+
+    Another numba kernel may call this per ray. A call passes every array as several
+    machine words; to inline it instead, compile ``cast_one.py_func`` with
+    ``njit(inline="always")`` as :func:`cast_rays` does.
     """
     dx = np.cos(theta)
     dy = np.sin(theta)
@@ -228,43 +224,40 @@ def cast_one(px, py, theta, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_
         qy = py + t_in * dy
     ci = min(max(int(np.floor((qx - gx0) / gcell)), 0), gnx - 1)
     cj = min(max(int(np.floor((qy - gy0) / gcell)), 0), gny - 1)
-    # Per axis: the step, the side of the cell the ray leaves by (0 low, 1 high) and the
-    # ray parameter tx / ty where it crosses that side of the current cell.
+    # Per axis: the cell step, the ray parameter of the side of the current cell the ray
+    # leaves by, and the parameter span of one cell.
     step_x = 0
-    side_x = 0
-    inv_x = 0.0
     tx = np.inf
-    if dx > 0.0:
-        step_x = 1
-        side_x = 1
-    elif dx < 0.0:
-        step_x = -1
-    if step_x != 0:
-        inv_x = 1.0 / dx
-        tx = (gx0 + (ci + side_x) * gcell - px) * inv_x
+    dtx = np.inf
+    if dx != 0.0:
+        step_x = 1 if dx > 0.0 else -1
+        side = ci + 1 if dx > 0.0 else ci
+        tx = (gx0 + side * gcell - px) / dx
+        dtx = gcell / abs(dx)
     step_y = 0
-    side_y = 0
-    inv_y = 0.0
     ty = np.inf
-    if dy > 0.0:
-        step_y = 1
-        side_y = 1
-    elif dy < 0.0:
-        step_y = -1
-    if step_y != 0:
-        inv_y = 1.0 / dy
-        ty = (gy0 + (cj + side_y) * gcell - py) * inv_y
+    dty = np.inf
+    if dy != 0.0:
+        step_y = 1 if dy > 0.0 else -1
+        side = cj + 1 if dy > 0.0 else cj
+        ty = (gy0 + side * gcell - py) / dy
+        dty = gcell / abs(dy)
+    c = cj * gnx + ci
+    row = step_y * gnx
+    zero = np.uint64(0)
+    one = np.uint64(1)
     while True:
-        c = cj * gnx + ci
-        for k in range(cell_start[c], cell_start[c + 1]):
-            w = cell_walls[k]
-            ex = edge[w, 0]
-            ey = edge[w, 1]
+        # Unsigned indices (all are >= 0) spare numba's negative-index wraparound.
+        cu = np.uint64(c)
+        for k in range(cell_start[cu], cell_start[cu + one]):
+            w = np.uint64(cell_walls[np.uint64(k)])
+            ex = edge[w, zero]
+            ey = edge[w, one]
             denom = dx * ey - dy * ex
             if denom == 0.0:
                 continue
-            apx = start[w, 0] - px
-            apy = start[w, 1] - py
+            apx = start[w, zero] - px
+            apy = start[w, one] - py
             t = (apx * ey - apy * ex) / denom
             u = (apx * dy - apy * dx) / denom
             if u >= 0.0 and u <= 1.0 and t >= 0.0 and t <= length and t < best:
@@ -275,14 +268,31 @@ def cast_one(px, py, theta, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_
             ci += step_x
             if ci < 0 or ci >= gnx:
                 return best
-            tx = (gx0 + (ci + side_x) * gcell - px) * inv_x
+            c += step_x
+            tx += dtx
         else:
             if best <= ty or ty >= t_out:
                 return best
             cj += step_y
             if cj < 0 or cj >= gny:
                 return best
-            ty = (gy0 + (cj + side_y) * gcell - py) * inv_y
+            c += row
+            ty += dty
+
+
+# The same function inlined into the batch loop: a call per ray would pass each array as
+# several machine words and cost about as much as the walk itself.
+_cast_one_inline = njit(nogil=True, inline="always")(cast_one.py_func)
+
+
+@njit(cache=True, nogil=True)
+def _cast_all(origins, headings, ray_angles, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge, out):  # pragma: no cover - compiled
+    for i in range(origins.shape[0]):
+        px = origins[i, 0]
+        py = origins[i, 1]
+        for j in range(ray_angles.shape[0]):
+            theta = headings[i] + ray_angles[j]
+            out[i, j] = _cast_one_inline(px, py, theta, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge)
 
 
 def proximity(distance_from_centre: np.ndarray, body_radius: float, max_range: float) -> np.ndarray:
