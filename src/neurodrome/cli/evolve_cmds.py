@@ -91,7 +91,9 @@ def _add_evolve(sub: argparse._SubParsersAction) -> None:
             "Each generation appends to RUN_DIR/log.jsonl, writes the best genome so far to "
             "RUN_DIR/best.net.json (a network file for evaluate, watch and record) and an atomic "
             "checkpoint; --resume continues a stopped run exactly. With several runs or treatments "
-            "each run gets RUN_DIR/<treatment>-<seed>/. Options given here override the config file."
+            "each run gets RUN_DIR/<treatment>-<seed>/, and the runs go side by side on the shared "
+            "workers (or Dask cluster), each run identical to the same run alone; --resume then "
+            "continues every unfinished run. Options given here override the config file."
         ),
     )
     parser.add_argument("world", metavar="WORLD", help="world file")
@@ -106,44 +108,66 @@ def _add_evolve(sub: argparse._SubParsersAction) -> None:
     parser.add_argument("--workers", type=int, default=1, metavar="K",
                         help="local worker processes for evaluation (0: all cores; default 1, in this process)")
     parser.add_argument("--scheduler", default=None, metavar="ADDR", help="evaluate on a Dask cluster (tcp://host:8786)")
-    parser.add_argument("--resume", action="store_true", help="continue the runs in RUN_DIR from their checkpoints")
+    parser.add_argument("--side-by-side", type=int, default=0, metavar="K",
+                        help="runs that evolve at once on the shared workers (default 0: all of them; "
+                             "1: one after another); without --workers or --scheduler runs go one at a time")
+    parser.add_argument("--resume", action="store_true",
+                        help="continue every unfinished run in RUN_DIR from its checkpoint")
     parser.add_argument("--quiet", action="store_true", help="no progress display")
     parser.add_argument("--json", action="store_true", help="print a JSON summary of the runs")
     parser.set_defaults(func=_run_evolve)
 
 
 def _run_evolve(args: argparse.Namespace) -> int:
-    import sys
-    import time
-
-    from ..evolve.config import load_config, with_overrides
-    from ..evolve.run import evolve
-
-    config = with_overrides(load_config(args.config), generations=args.generations, population=args.population,
-                            seed=args.seed, runs=args.runs, treatments=args.treatments)
-    started = time.perf_counter()
-    tty = sys.stderr.isatty()
-
-    def progress(treatment: str, seed: int, gen: int, total: int, best: float, median: float, so_far: float) -> None:
-        text = (f"{treatment} seed {seed}: generation {gen + 1}/{total}  best {best:.4g}  median {median:.4g}  "
-                f"best so far {so_far:.4g}  [{time.perf_counter() - started:.0f} s]")
-        print(("\r" + text + "\033[K") if tty else text, end="" if tty else "\n", file=sys.stderr, flush=True)
-        if tty and gen + 1 == total:
-            print(file=sys.stderr)
-
     import signal
 
     def stop(_signum: int, _frame: object) -> None:
-        # a terminated run unwinds like an interrupted one, so its worker pool is shut down;
-        # the checkpoint of the last whole generation is already on disk
+        # a terminated study unwinds like an interrupted one: workers are stopped and every
+        # run's checkpoint of its last whole generation is already on disk
         raise KeyboardInterrupt
 
     previous = signal.signal(signal.SIGTERM, stop)
     try:
-        summaries = evolve(args.world, config, args.output, workers=args.workers, scheduler=args.scheduler,
-                           resume=args.resume, progress=None if args.quiet else progress)
+        return _evolve_study(args)
     finally:
         signal.signal(signal.SIGTERM, previous)
+
+
+def _evolve_study(args: argparse.Namespace) -> int:
+    """Prepare every run of the study, print one line per finished generation, summarise."""
+    import sys
+    import time
+
+    from ..evolve.config import load_config, with_overrides
+    from ..evolve.study import GenerationDone, Study
+
+    config = with_overrides(load_config(args.config), generations=args.generations, population=args.population,
+                            seed=args.seed, runs=args.runs, treatments=args.treatments)
+    study = Study(args.world, config, args.output, workers=args.workers, scheduler=args.scheduler,
+                  resume=args.resume, side_by_side=args.side_by_side)
+    study.prepare()
+    total = len(study.runs)
+    width = max(len(f"{r.treatment}-{r.seed}") for r in study.runs)
+    digits = len(str(config.generations))
+    started = time.perf_counter()
+
+    def say(text: str) -> None:
+        print(text, file=sys.stderr, flush=True)
+
+    def progress(ev: GenerationDone) -> None:
+        say(f"{ev.name:<{width}}  generation {ev.generation + 1:>{digits}}/{ev.generations}  best {ev.best:<9.4g} "
+            f"median {ev.median:<9.4g} best so far {ev.best_so_far:<9.4g} | runs done {ev.runs_done}/{ev.runs}  "
+            f"[{time.perf_counter() - started:.0f} s]")
+
+    if not args.quiet:
+        where = (f"on the Dask cluster at {args.scheduler}" if args.scheduler
+                 else f"on {study.workers or 'all'} local workers" if args.workers != 1 else "in this process")
+        pace = ("side by side" if study.at_once == total else f"{study.at_once} at a time") if total > 1 else ""
+        runs = f"{total} runs" if total > 1 else "1 run"
+        resumed = f", {study.runs_done} already finished" if args.resume and study.runs_done else ""
+        say(f"{runs} of {config.generations} generations {pace + ' ' if pace else ''}{where}{resumed}")
+
+    summaries = study.run(None if args.quiet else progress)
     if args.json:
         print(json.dumps([{"run_dir": str(s.run_dir), "treatment": s.treatment, "seed": s.seed,
                            "generations": s.generations, "best_so_far": s.best_so_far,

@@ -15,7 +15,10 @@ A run directory (format in :mod:`neurodrome.evolve.rundir`) holds, after every g
 
 Each generation every genome becomes a network description and goes through
 :func:`neurodrome.evaluate.evaluate` with the run's executor (in-process, a
-:class:`~neurodrome.executors.LocalPool` kept warm for the whole run, or a Dask scheduler).
+:class:`~neurodrome.executors.LocalPool` kept warm for the whole study, or a Dask
+scheduler). The runs of a study go side by side on one executor, one thread each
+(:mod:`neurodrome.evolve.study`); a run touches only its own population, generator and
+directory, so :meth:`Run.step` may run in any thread.
 """
 
 from __future__ import annotations
@@ -249,27 +252,8 @@ def run_dirs(out_dir: str | Path, config: EvolveConfig) -> list[tuple[str, int, 
     return [(t, s, out / f"{t}-{s}") for t, s in plan]
 
 
-def evolve(world_path: str | Path, config: EvolveConfig, out_dir: str | Path, *, workers: int = 1,
-           scheduler: str | None = None, resume: bool = False, progress: Progress | None = None) -> list[RunSummary]:
-    """Run every treatment ``config.runs`` times, one after another, sharing one executor:
-    a local pool of ``workers`` processes (kept warm across runs) or a Dask ``scheduler``.
-    Each generation is spread over all workers, which keeps them busy without running
-    several runs at once."""
-    world = load_world(world_path)
-    plan = run_dirs(out_dir, config)
-    runs = [Run(world_path, config, d, t, s, world=world) for t, s, d in plan]
-    if not resume:
-        for r in runs:
-            if (r.run_dir / LOG_NAME).is_file():
-                raise ConfigError(Problem(str(r.run_dir), "an empty or new run directory (or --resume)",
-                                          f"a run is already there ({LOG_NAME})"))
-    pool = None
-    executor: Any = scheduler
-    if scheduler is None and workers != 1:
-        from ..executors import LocalPool
-        pool = executor = LocalPool(workers or None)
-    try:
-        return [r.run(executor=executor, resume=resume, progress=progress) for r in runs]
-    finally:
-        if pool is not None:
-            pool.close()
+def evolve(world_path: str | Path, config: EvolveConfig, out_dir: str | Path, **options: Any) -> list[RunSummary]:
+    """Run a whole study side by side; see :func:`neurodrome.evolve.study.evolve`."""
+    from .study import evolve as evolve_study
+
+    return evolve_study(world_path, config, out_dir, **options)
