@@ -30,7 +30,11 @@ def main() -> None:
     parser.add_argument("--trials", type=int, default=None, help="override the world's trial count")
     parser.add_argument("--world", default=str(ROOT / "worlds" / "clinic-junction-restock.json"))
     parser.add_argument("--json", action="store_true")
+    parser.add_argument("--study", action="store_true",
+                        help="instead: a 2-run x 2-treatment study side by side against its runs one after another")
     args = parser.parse_args()
+    if args.study:
+        return study(args)
 
     from neurodrome.evolve.config import EvolveConfig
     from neurodrome.evolve.run import Run
@@ -61,6 +65,34 @@ def main() -> None:
     else:
         print(f"{per_minute:.2f} generations per minute (population {args.population}, {run.trials} trials, "
               f"{args.workers} workers, {total:.0f} s for {args.generations} generations)")
+
+
+def study(args: argparse.Namespace) -> None:
+    """Time a 2-run x 2-treatment study side by side on one pool, then the same four runs
+    one after another (``side_by_side=1``) on the same pool; print the study's time against
+    its longest run and against the sum of its runs. The two must write identical logs."""
+    from neurodrome.evolve.config import EvolveConfig
+    from neurodrome.evolve.study import Study
+
+    config = EvolveConfig.model_validate({"population": args.population, "generations": args.generations,
+                                          "seed": args.seed, "runs": 2, "treatments": ["modulated", "fixed"],
+                                          "evaluation": {"trials": args.trials}})
+    times, logs = {}, {}
+    with tempfile.TemporaryDirectory() as tmp:
+        for mode, at_once in (("one after another", 1), ("side by side", None)):
+            out = Path(tmp) / mode.replace(" ", "-")
+            t0 = time.perf_counter()
+            summaries = Study(args.world, config, out, workers=args.workers, side_by_side=at_once).run()
+            times[mode] = (time.perf_counter() - t0, summaries)
+            logs[mode] = [[{k: v for k, v in json.loads(line).items() if k != "eval_seconds"}
+                           for line in (s.run_dir / "log.jsonl").read_text().splitlines()] for s in summaries]
+            print(f"{mode}: {times[mode][0]:.1f} s", flush=True)
+    alone = [s.seconds for s in times["one after another"][1]]
+    together = times["side by side"][0]
+    print(f"study of 4 runs ({args.population} genomes, {args.generations} generations, {args.workers} workers): "
+          f"side by side {together:.1f} s; runs alone {', '.join(f'{a:.1f}' for a in alone)} s "
+          f"(sum {sum(alone):.1f} s); side by side / longest run = {together / max(alone):.2f}x, "
+          f"/ sum = {together / sum(alone):.2f}x; logs identical: {'yes' if logs['side by side'] == logs['one after another'] else 'NO'}")
 
 
 if __name__ == "__main__":

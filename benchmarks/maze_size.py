@@ -25,7 +25,7 @@ from pathlib import Path
 import numpy as np
 import shapely
 from numba import njit
-from shapely.geometry import LineString, Point, box
+from shapely.geometry import LineString, box
 
 from neurodrome.sim.sensors import WallGrid, cast_one, cast_rays
 from neurodrome.world import build_geometry, load_world, world_from_data
@@ -34,18 +34,10 @@ from neurodrome.world.templates import make
 ROOT = Path(__file__).resolve().parent.parent
 
 
-def spiral_maze(points: int = 500, turns: float = 4.0, r0: float = 0.8, pitch: float = 1.0, width: float = 0.5):
-    """A world whose one corridor follows an Archimedean spiral of ``points`` points."""
-    th = np.linspace(0.0, 2 * math.pi * turns, points)
-    r = r0 + pitch * th / (2 * math.pi)
-    path = [[round(float(x), 6), round(float(y), 6)] for x, y in zip(r * np.cos(th), r * np.sin(th))]
-    data = make("junction", width=width, name="spiral-maze")
-    data["corridors"] = [{"name": "spiral", "path": path, "width": width}]
-    data["home"]["position"] = path[0]
-    data["sites"][0]["position"] = path[-1]
-    data["sites"][1]["position"] = path[points // 2]
-    data["markers"][0]["position"] = path[points // 4]
-    return world_from_data(data, "<spiral maze>")
+def spiral_maze(points: int = 500):
+    """The ``spiral`` template: one corridor along an Archimedean spiral of ``points``
+    points (about 2 * points walls)."""
+    return world_from_data(make("spiral", points=points), "<spiral maze>")
 
 
 def random_poses(geometry, n, rng, margin):

@@ -1,6 +1,6 @@
 """The shipped champions: re-evaluate them on the bundled worlds and check the configs that made them.
 
-Yardsticks from ../shared/REFERENCES.md section 3 [practice]: in a static junction a fixed
+Yardsticks from Soltoggio et al. 2008; Blynel & Floreano 2003 [practice]: in a static junction a fixed
 controller can score the maximum, N r_H (every trial at the high-reward site); on the
 relocating junction a controller that always turns the same way is stuck near a plateau,
 here measured by the bundled courier-same-arm agent under the same seed.
@@ -26,7 +26,7 @@ RESTOCK = ROOT / "worlds" / "clinic-junction-restock.json"
 
 
 def _maximum(world_path: Path, trials: int) -> float:
-    """N r_H with r_H read from the world file (REFERENCES.md section 3)."""
+    """N r_H with r_H read from the world file (Soltoggio et al. 2008; Blynel & Floreano 2003)."""
     return trials * max(load_world(world_path).task.site_values.values())
 
 
@@ -40,14 +40,14 @@ def test_static_champion_scores_the_maximum_on_ten_trials():
 
 @pytest.mark.slow
 def test_static_champion_scores_the_maximum_on_all_trials():
-    """All 100 trials of the bundled static junction: fitness N r_H (REFERENCES.md section 3)."""
+    """All 100 trials of the bundled static junction: fitness N r_H (Soltoggio et al. 2008; Blynel & Floreano 2003)."""
     (result,) = evaluate(STATIC, [str(ASSETS / "champion-static.net.json")], seed=1)
     assert result.fitness == pytest.approx(_maximum(STATIC, load_world(STATIC).task.trials))
 
 
 def _same_arm_plateau(result, world_path: Path) -> float:
     """Best score of always choosing one arm, from the relocation this evaluation drew:
-    sum over trials of that arm's value (REFERENCES.md section 3: the same-arm plateau)."""
+    sum over trials of that arm's value (Soltoggio et al. 2008; Blynel & Floreano 2003: the same-arm plateau)."""
     world = load_world(world_path)
     values = dict(world.task.site_values)
     totals = dict.fromkeys(values, 0.0)
@@ -120,7 +120,7 @@ def _arms(result) -> str:
 
 @pytest.mark.parametrize("seed", [0, 4])
 def test_restock_champion_turns_after_the_restock_and_not_before(seed):
-    """The champion's choice follows the rewards it collects (REFERENCES.md section 3, practice:
+    """The champion's choice follows the rewards it collects (Soltoggio et al. 2008; Blynel & Floreano 2003, practice:
     only a controller that changes its choice after the relocation approaches the maximum):
     east store in every trial up to the restock, west within three trials after it, and west
     in nearly all trials from then on."""

@@ -1,5 +1,5 @@
 """End-to-end checks of the bundled junction worlds against the junction-maze protocol
-(shared/REFERENCES.md section 3): full evaluations with the bundled scripted agents."""
+(Soltoggio et al. 2008; Blynel & Floreano 2003): full evaluations with the bundled scripted agents."""
 
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ from sim_support import WORLDS_DIR
 
 
 def ideal_learner_bound(trials: int, high: float, low: float, exploratory: int) -> float:
-    """N r_H - sum_k e_k (r_H - r_L) (REFERENCES.md section 3, computed)."""
+    """N r_H - sum_k e_k (r_H - r_L) (Soltoggio et al. 2008; Blynel & Floreano 2003, computed)."""
     return trials * high - exploratory * (high - low)
 
 
@@ -18,7 +18,7 @@ def ideal_learner_bound(trials: int, high: float, low: float, exploratory: int) 
 def test_static_junction_memory_courier_scores_the_maximum():
     """clinic-junction (100 trials, fixed stock): the explicit-memory courier scores the
     ideal learner's maximum, one exploratory trial at the start; a fixed controller can
-    score the maximum in a static maze (REFERENCES.md section 3, common practice)."""
+    score the maximum in a static maze (Soltoggio et al. 2008; Blynel & Floreano 2003, common practice)."""
     world = load_world(WORLDS_DIR / "clinic-junction.json")
     values = world.task.site_values
     high, low = max(values.values()), min(values.values())
@@ -32,7 +32,7 @@ def test_restock_junction_memory_beats_same_arm_plateau():
     """clinic-junction-restock: the memory courier stays within the ideal-learner bound
     (exploratory trials at the start and after the restock) and beats the same-arm
     courier, which sits on the plateau of a non-learner: low reward on one side of the
-    restock, high on the other (REFERENCES.md section 3, common practice)."""
+    restock, high on the other (Soltoggio et al. 2008; Blynel & Floreano 2003, common practice)."""
     world = load_world(WORLDS_DIR / "clinic-junction-restock.json")
     n = world.task.trials
     values = world.task.site_values

@@ -3,7 +3,7 @@
 The operators follow NEAT (Stanley & Miikkulainen 2002, "Evolving neural networks through
 augmenting topologies", Evolutionary Computation 10(2) [memory, high confidence]); the
 network each genome becomes is checked by the project's own validator and compiler, which
-are themselves tested against ../shared/REFERENCES.md section 2.
+are themselves tested against Soltoggio et al. 2008, ALife XI.
 """
 
 from __future__ import annotations

@@ -2,7 +2,7 @@
 
 The reference below follows the update order of neurodrome.control.network's module
 docstring one neuron and one connection at a time, with math.tanh, dicts and no numpy,
-and the plasticity rule of Soltoggio et al. (2008) as restated in REFERENCES.md section 2.
+and the plasticity rule of Soltoggio et al. (2008) as restated in Soltoggio et al. 2008, ALife XI.
 """
 
 from __future__ import annotations
@@ -201,7 +201,7 @@ def check_net(o_j: float, o_i: float, m: float, eta: float, A: float, B: float, 
 
 
 def test_check_value_tanh_half():
-    """tanh(0.5) = 0.4621172 and tanh(1) = 0.7615942 (REFERENCES.md section 2, computed)."""
+    """tanh(0.5) = 0.4621172 and tanh(1) = 0.7615942 (Soltoggio et al. 2008, ALife XI, computed)."""
     spec = network_from_data({
         "format": "neurodrome-network", "version": 1,
         "neurons": [{"id": "x", "role": "input", "channel": "range_0"},
@@ -217,25 +217,25 @@ def test_check_value_tanh_half():
 
 
 def test_check_value_plain_product():
-    """o_j=0.5, o_i=-0.2, m=1, eta=1, A=1 gives dw = -0.0462117 (REFERENCES.md section 2, computed)."""
+    """o_j=0.5, o_i=-0.2, m=1, eta=1, A=1 gives dw = -0.0462117 (Soltoggio et al. 2008, ALife XI, computed)."""
     _, w = check_net(0.5, -0.2, 1.0, 1.0, 1.0, 0.0, 0.0, 0.0)
     assert w == pytest.approx(-0.0462117, abs=1e-7)
 
 
 def test_check_value_full_rule():
-    """o_j=0.8, o_i=0.6, m=-2, eta=10, (A,B,C,D)=(0.5,-0.2,0.1,0) gives dw = -1.0662318 (REFERENCES.md section 2)."""
+    """o_j=0.8, o_i=0.6, m=-2, eta=10, (A,B,C,D)=(0.5,-0.2,0.1,0) gives dw = -1.0662318 (Soltoggio et al. 2008, ALife XI)."""
     _, w = check_net(0.8, 0.6, -2.0, 10.0, 0.5, -0.2, 0.1, 0.0)
     assert w == pytest.approx(-1.0662318, abs=1e-7)
 
 
 def test_check_value_zero_modulation():
-    """m = 0 gives dw = 0 whatever the rule (REFERENCES.md section 2)."""
+    """m = 0 gives dw = 0 whatever the rule (Soltoggio et al. 2008, ALife XI)."""
     _, w = check_net(0.8, 0.6, 0.0, 10.0, 0.5, -0.2, 0.1, 0.3)
     assert w == 0.0
 
 
 def test_unmodulated_neuron_uses_modulation_one():
-    """Without modulatory input the rule is plain Hebbian: dw = eta * A * o_j * o_i (REFERENCES.md section 2)."""
+    """Without modulatory input the rule is plain Hebbian: dw = eta * A * o_j * o_i (Soltoggio et al. 2008, ALife XI)."""
     spec = network_from_data({
         "format": "neurodrome-network", "version": 1,
         "rule": {"learning_rate": 1.0, "correlation": 1.0, "presynaptic": 0.0, "postsynaptic": 0.0, "constant": 0.0},
@@ -252,7 +252,7 @@ def test_unmodulated_neuron_uses_modulation_one():
 
 
 def test_weights_are_clipped_to_bounds():
-    """A rule pushing a weight past its bound leaves it at the bound (REFERENCES.md section 2: clipped)."""
+    """A rule pushing a weight past its bound leaves it at the bound (Soltoggio et al. 2008, ALife XI: clipped)."""
     _, w = check_net(1.0, 1.0, 0.0, 100.0, 1.0, 0.0, 0.0, 1.0)  # m=0: no change
     assert w == 0.0
     spec = network_from_data({

@@ -53,7 +53,7 @@ def problems_of(data: dict) -> list[str]:
 
 
 def test_valid_network_loads_with_defaults():
-    """A valid dict loads; bounds default to [-10, 10] (REFERENCES.md section 2, memory, low confidence)."""
+    """A valid dict loads; bounds default to [-10, 10] (Soltoggio et al. 2008, ALife XI, memory, low confidence)."""
     spec = network_from_data(base())
     assert spec.weight_bounds == DEFAULT_BOUNDS == (-10.0, 10.0)
     assert spec.neurons[3].activation == "tanh_half"

@@ -2,7 +2,7 @@
 neuron is active (after a reward), by the published rule, step by step.
 
 Rule: dw_ji = tanh(m_i / 2) * eta * (A o_j o_i + B o_j + C o_i + D), Soltoggio et al.
-(2008), restated in Risi, Hughes & Stanley (2010); shared/REFERENCES.md section 2
+(2008), restated in Risi, Hughes & Stanley (2010); Soltoggio et al. 2008, ALife XI
 (equations from memory, high confidence).
 """
 

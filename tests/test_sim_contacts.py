@@ -10,14 +10,17 @@ import numpy as np
 import pytest
 
 from neurodrome.sim.arena import ROBOT_TYPE, WALL_TYPE, Arena
-from neurodrome.world import build_geometry, load_world
+from neurodrome.world import build_geometry, load_world, world_from_data
+from neurodrome.world.templates import make
 
 WORLDS = sorted((Path(__file__).resolve().parent.parent / "worlds").glob("clinic-*.json"))
 
 
-@pytest.mark.parametrize("path", WORLDS, ids=lambda p: p.stem)
+@pytest.mark.parametrize("path", WORLDS + ["spiral"], ids=lambda p: getattr(p, "stem", p))
 def test_contacts_match_pymunk_handlers(path):
-    world = load_world(path)
+    """The bundled worlds and the spiral template (about 1000 short walls, so a robot
+    often touches two segments at once)."""
+    world = world_from_data(make("spiral")) if path == "spiral" else load_world(path)
     geometry = build_geometry(world)
     n = 24
     arena = Arena(world, geometry, n)

@@ -2,8 +2,7 @@
 
 Source: instantaneous centre of curvature, Dudek & Jenkin, *Computational Principles of
 Mobile Robotics*; Siegwart, Nourbakhsh & Scaramuzza, *Introduction to Autonomous Mobile
-Robots*, 2nd ed., ch. 3. Check values: shared/REFERENCES.md section 1 (computed from
-the formula, six decimals).
+Robots*, 2nd ed., ch. 3. Check values computed from the formula (six decimals).
 """
 
 from __future__ import annotations
@@ -17,7 +16,7 @@ from neurodrome.sim.arena import Arena
 from neurodrome.world import build_geometry
 from sim_support import template_world
 
-# (start x, y, theta), v_l, v_r, L, t, pose at t  -- REFERENCES.md section 1, every row
+# (start x, y, theta), v_l, v_r, L, t, pose at t  -- computed from the exact-arc formulas, every row
 ROWS = [
     ((0, 0, 0), 1, 1, 0.5, 2, (2, 0, 0)),
     ((0, 0, 0), -0.5, 0.5, 0.5, math.pi / 4, (0, 0, math.pi / 2)),
@@ -29,7 +28,7 @@ ROWS = [
 
 
 def exact_arc(start, v_l, v_r, L, t):
-    """The exact-arc pose (REFERENCES.md section 1 formulas)."""
+    """The exact-arc pose (the exact-arc formulas of the sources above)."""
     x0, y0, th = start
     v, om = (v_r + v_l) / 2, (v_r - v_l) / L
     if om == 0:
@@ -76,8 +75,8 @@ def test_open_space_path_follows_exact_arc(row):
 
 
 def test_euler_baseline_is_worse_than_simulator():
-    """The plain Euler update at dt = 0.1 is off by about 0.07 on row 5 (REFERENCES.md
-    section 1); the simulator at a coarse 0.1 s step is not."""
+    """The plain Euler update at dt = 0.1 is off by about 0.07 on row 5 (exact-arc
+    formulas, Siegwart et al., ch. 3); the simulator at a coarse 0.1 s step is not."""
     start, v_l, v_r, L, t, table = ROWS[4]
     x, y, th = start
     v, om = (v_l + v_r) / 2, (v_r - v_l) / L

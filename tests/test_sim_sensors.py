@@ -8,13 +8,15 @@ import numpy as np
 import pymunk
 import pytest
 import shapely
+from numba import njit
 from shapely.geometry import LineString, Point
 
 from neurodrome.control.protocol import Layout
 from neurodrome.sim.arena import WALL_CATEGORY
 from neurodrome.sim.batch import Batch
-from neurodrome.sim.sensors import WallGrid, cast_rays, proximity, ray_directions
-from neurodrome.world import build_geometry, load_world
+from neurodrome.sim.sensors import CELL_PER_WALL_LENGTH, CELL_TOLERANCE, WallGrid, cast_one, cast_rays, proximity, ray_directions
+from neurodrome.world import build_geometry, load_world, world_from_data
+from neurodrome.world.templates import make
 from sim_support import WORLDS_DIR, Constant, Jitterbug, bundled_world_paths, template_world
 
 WORLDS = bundled_world_paths()
@@ -67,23 +69,23 @@ def test_rays_match_pymunk_and_shapely(path):
                     assert abs(got[i, j] - ref) < 1e-9
 
 
-def test_wall_grid_keeps_every_reachable_wall():
-    """The grid's candidate list of a cell holds every wall within one ray length of any
-    point of the cell (checked against shapely distances)."""
+def test_wall_grid_lists_every_wall_touching_each_cell():
+    """Each cell lists exactly the walls that touch its box grown by the tolerance
+    (checked against shapely's intersection test)."""
     world = template_world("double-junction")
     walls = build_geometry(world).walls
     grid = WallGrid(walls, reach=0.7, cell=0.5)
-    rng = np.random.default_rng(3)
-    pts = np.column_stack([rng.uniform(-1.3, 1.3, 300), rng.uniform(-0.3, 2.6, 300)])
-    cells = grid.cells_of(pts)
-    for p, c in zip(pts, cells):
-        near = {k for k, w in enumerate(walls) if LineString([w[:2], w[2:]]).distance(Point(p)) <= 0.7}
-        assert near <= set(grid.candidates[c].tolist())
+    for c in range(grid.nx * grid.ny):
+        i, j = c % grid.nx, c // grid.nx
+        x, y = grid.x0 + i * grid.cell, grid.y0 + j * grid.cell
+        cell = shapely.box(x - CELL_TOLERANCE, y - CELL_TOLERANCE, x + grid.cell + CELL_TOLERANCE, y + grid.cell + CELL_TOLERANCE)
+        touching = {k for k, w in enumerate(walls) if LineString([w[:2], w[2:]]).intersects(cell)}
+        assert set(grid.walls_in(c).tolist()) == touching
 
 
 def test_proximity_reading_convention():
     """Proximity is 1 - d/range with d from the body surface, 0 when nothing is in range
-    (REFERENCES.md section 4, common practice)."""
+    (common practice)."""
     d = np.array([0.1, 0.6, 1.1, np.inf, 0.05])
     got = proximity(d, body_radius=0.1, max_range=1.0)
     assert got.tolist() == pytest.approx([1.0, 0.5, 0.0, 0.0, 1.0])
@@ -110,8 +112,8 @@ def test_zone_signals_follow_the_robot():
 
 
 def test_sensor_noise_is_multiplicative_and_seeded():
-    """With noise, readings are the clean reading times (1 + N(0, sigma^2)) (REFERENCES.md
-    section 4): same seed same readings, other seed other readings, and the relative error
+    """With noise, readings are the clean reading times (1 + N(0, sigma^2)) (common
+    practice): same seed same readings, other seed other readings, and the relative error
     has the requested standard deviation."""
     def run(seed, noise):
         world = template_world("junction", robot={"range_finders": {"angles_deg": [-90, -45, 0, 45, 90], "max_range": 1.0, "noise": noise}})
@@ -126,12 +128,6 @@ def test_sensor_noise_is_multiplicative_and_seeded():
 
 
 # ---- the cell walk: bit-identity with every wall, pymunk, shapely, edge cases ----------
-
-from numba import njit  # noqa: E402
-
-from neurodrome.sim.sensors import CELL_PER_WALL_LENGTH, CELL_TOLERANCE, cast_one  # noqa: E402
-from neurodrome.world import world_from_data  # noqa: E402
-from neurodrome.world.templates import make  # noqa: E402
 
 
 def every_wall(walls, origins, headings, ray_angles, length):
@@ -160,19 +156,10 @@ def every_wall(walls, origins, headings, ray_angles, length):
     return out
 
 
-def spiral_world(points=500, turns=4.0, r0=0.8, pitch=1.0, width=0.5):
-    """A maze of about 1000 walls: one corridor 0.5 m wide along an Archimedean spiral
-    sampled at ``points`` points, as a world dict built from the junction template."""
-    th = np.linspace(0.0, 2 * math.pi * turns, points)
-    r = r0 + pitch * th / (2 * math.pi)
-    path = [[round(float(x), 6), round(float(y), 6)] for x, y in zip(r * np.cos(th), r * np.sin(th))]
-    data = make("junction", width=width, name="spiral-maze")
-    data["corridors"] = [{"name": "spiral", "path": path, "width": width}]
-    data["home"]["position"] = path[0]
-    data["sites"][0]["position"] = path[-1]
-    data["sites"][1]["position"] = path[points // 2]
-    data["markers"][0]["position"] = path[points // 4]
-    return world_from_data(data, "<spiral maze>")
+def spiral_world():
+    """A maze of about 1000 walls: the ``spiral`` template, one corridor 0.5 m wide along an
+    Archimedean spiral sampled at 500 points."""
+    return world_from_data(make("spiral"), "<spiral maze>")
 
 
 @pytest.fixture(scope="module")

@@ -1,5 +1,5 @@
 """Trials, scoring, relocation and faults, checked against the junction-maze protocol
-(shared/REFERENCES.md section 3) and hand-counted expectations."""
+(Soltoggio et al. 2008; Blynel & Floreano 2003) and hand-counted expectations."""
 
 from __future__ import annotations
 
@@ -16,7 +16,7 @@ FAST = {"time_step_s": 0.05, "control_period_s": 0.1}
 
 
 def ideal_learner_bound(trials: int, high: float, low: float, exploratory: int) -> float:
-    """N r_H - sum_k e_k (r_H - r_L) (REFERENCES.md section 3, computed)."""
+    """N r_H - sum_k e_k (r_H - r_L) (Soltoggio et al. 2008; Blynel & Floreano 2003, computed)."""
     return trials * high - exploratory * (high - low)
 
 
@@ -27,7 +27,7 @@ def couriers(world, policy, n=1):
 
 def test_memory_courier_scores_the_maximum_in_a_static_junction():
     """Static single junction: the explicit-memory courier loses only its first
-    (exploratory) trial, the ideal learner's score (REFERENCES.md section 3)."""
+    (exploratory) trial, the ideal learner's score (Soltoggio et al. 2008; Blynel & Floreano 2003)."""
     world = template_world("junction", trials=12, physics=FAST)
     result = Batch(world, couriers(world, "memory"), seed=1).run()[0]
     assert result.fitness == pytest.approx(ideal_learner_bound(12, 1.0, 0.2, 1))
@@ -37,8 +37,8 @@ def test_memory_courier_scores_the_maximum_in_a_static_junction():
 def test_relocation_memory_within_bound_and_beats_same_arm():
     """Relocating junction: the memory courier stays within the ideal-learner bound (one
     exploratory trial at the start, one after the relocation) and beats the courier that
-    always takes the same arm, which sits near the low-reward plateau (REFERENCES.md
-    section 3, common practice)."""
+    always takes the same arm, which sits near the low-reward plateau (Soltoggio
+    et al. 2008, common practice)."""
     world = template_world("junction", trials=16, relocate="fixed", physics=FAST)
     memory, same = Batch(world, couriers(world, "memory") + couriers(world, "same-arm"), seed=3).run()
     bound = ideal_learner_bound(16, 1.0, 0.2, 2)
@@ -55,7 +55,7 @@ def test_relocation_memory_within_bound_and_beats_same_arm():
 
 def test_crash_penalty_ends_the_trial():
     """A robot that drives into a wall gets the crash penalty once and its trial ends
-    (published T-maze protocol: crash penalty, trial ends; REFERENCES.md section 3)."""
+    (published T-maze protocol: crash penalty, trial ends; Soltoggio et al. 2008; Blynel & Floreano 2003)."""
     world = template_world("junction", trials=3, physics=FAST)
     result = Batch(world, [Jitterbug(mode="ram")], seed=0).run()[0]
     penalty = world.task.scoring.crash_penalty

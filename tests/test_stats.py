@@ -1,4 +1,4 @@
-"""Rank-sum test, A12 and run curves, checked against scipy and REFERENCES.md section 5."""
+"""Rank-sum test, A12 and run curves, checked against scipy and Arcuri & Briand 2011, ICSE; Vargha & Delaney 2000."""
 
 from __future__ import annotations
 
@@ -23,13 +23,13 @@ from neurodrome.evolve.stats import (
     vargha_delaney_a12,
 )
 
-# REFERENCES.md section 5: check values computed with scipy.stats.mannwhitneyu, exact, two-sided.
+# Arcuri & Briand 2011, ICSE; Vargha & Delaney 2000: check values computed with scipy.stats.mannwhitneyu, exact, two-sided.
 SEPARATED = (list(range(1, 6)), list(range(6, 11)))
 FITNESS = ([91.2, 88.0, 93.5, 79.9, 95.1, 90.0], [80.1, 85.3, 78.2, 90.5, 76.0, 82.2])
 
 
 def test_reference_check_values_separated_samples():
-    """[1..5] vs [6..10] gives U = 0, p = 0.0079365 (REFERENCES.md 5, scipy exact)."""
+    """[1..5] vs [6..10] gives U = 0, p = 0.0079365 (Arcuri & Briand 2011, ICSE; Vargha & Delaney 2000, scipy exact)."""
     result = mann_whitney_u(*SEPARATED, method="exact")
     assert result.u == 0
     assert result.p == pytest.approx(0.0079365, abs=5e-8)
@@ -37,7 +37,7 @@ def test_reference_check_values_separated_samples():
 
 
 def test_reference_check_values_fitness_samples():
-    """The fitness samples give U = 30, p = 0.064935, A12 = 0.8333 (REFERENCES.md 5, scipy exact)."""
+    """The fitness samples give U = 30, p = 0.064935, A12 = 0.8333 (Arcuri & Briand 2011, ICSE; Vargha & Delaney 2000, scipy exact)."""
     result = mann_whitney_u(*FITNESS, method="exact")
     assert result.u == 30
     assert result.p == pytest.approx(0.064935, abs=5e-7)

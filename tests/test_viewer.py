@@ -228,7 +228,7 @@ def test_viewer_modules_import_without_pygame_side_effects():
 
 def test_chart_follows_a_plastic_weight_as_it_learns(pg):
     """The charted weight of a plastic bias -> left-wheel connection changes every step by
-    the plain Hebbian rule dw = eta (A o_j o_i + D) with o_j = 1 (REFERENCES.md section 2,
+    the plain Hebbian rule dw = eta (A o_j o_i + D) with o_j = 1 (Soltoggio et al. 2008, ALife XI,
     no modulatory input so the factor is 1), read from the panel's own history."""
     from neurodrome.view.playback import LivePlayback
     from neurodrome.view.show import Show

@@ -95,6 +95,23 @@ def test_new_bad_options(argv, tmp_path, capsys):
     assert argv[0] in err
 
 
+@pytest.mark.parametrize("flag", ["--stem", "--arm"])
+def test_new_refuses_options_the_template_lacks(flag, tmp_path, capsys):
+    """The spiral template has no stem or arm: the option is named, exit 2, no traceback."""
+    code, _, err = run(capsys, "new", "spiral", "-o", str(tmp_path / "w.json"), flag, "2")
+    assert code == 2 and flag in err and "Traceback" not in err
+    assert not (tmp_path / "w.json").exists()
+
+
+def test_spiral_template_has_many_walls(tmp_path, capsys):
+    """The spiral corridor of 500 points gives about 1000 walls (two sides of 499 segments)."""
+    from neurodrome.world import build_geometry, world_from_data
+    from neurodrome.world.templates import make
+
+    walls = build_geometry(world_from_data(make("spiral"))).walls
+    assert 900 <= len(walls) <= 1100
+
+
 def test_new_refuses_unworkable_world(tmp_path, capsys):
     """A relocation that can never happen (one trial) is refused and nothing is written."""
     out = tmp_path / "w.json"

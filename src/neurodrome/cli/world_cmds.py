@@ -70,8 +70,11 @@ def _option_problems(args: argparse.Namespace) -> list[Problem]:
         problems.append(Problem("--trials", "a whole number from 1 to 100000", str(args.trials)))
     if args.relocations is not None and not (1 <= args.relocations <= 1000):
         problems.append(Problem("--relocations", "a whole number from 1 to 1000", str(args.relocations)))
-    if args.angles is not None and args.kind != "arms":
-        problems.append(Problem("--angles", "only with the arms template", f"template {args.kind}"))
+    takes = templates.options(args.kind)
+    for flag in ("stem", "arm", "angles"):
+        if getattr(args, flag) is not None and flag not in takes:
+            users = [k for k in templates.KINDS if flag in templates.options(k)]
+            problems.append(Problem(f"--{flag}", f"only with the template(s) {', '.join(users)}", f"template {args.kind}"))
     return problems
 
 

@@ -25,7 +25,7 @@ neurons, 0 for all others) and its current weights w.
        dw_ji = M_i * eta * (A * o'_j * o_i + B * o'_j + C * o_i + D)
        M_i   = tanh(m_i / 2) if i has an incoming connection from a modulatory neuron, else 1
 
-   (../shared/REFERENCES.md section 2; M_i = 1 is the plain Hebbian case), then is clipped
+   (Soltoggio et al. 2008, ALife XI; M_i = 1 is the plain Hebbian case), then is clipped
    to the connection's bounds. The presynaptic value is o'_j, the value that travelled
    along the connection this step and produced o_i; the postsynaptic value is the new
    o_i. So the rule correlates cause and effect across the connection's own delay, and

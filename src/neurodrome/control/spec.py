@@ -25,7 +25,7 @@ NETWORK_FORMAT = "neurodrome-network"
 NETWORK_VERSION = 1
 
 #: Weight bounds of plastic connections when the file gives none ([memory, low
-#: confidence] value of the published rule, ../shared/REFERENCES.md section 2).
+#: confidence] value of the published rule, Soltoggio et al. 2008, ALife XI).
 DEFAULT_BOUNDS = (-10.0, 10.0)
 
 #: Neuron output functions; ``tanh_half`` is tanh(x/2), the published default.

@@ -44,7 +44,7 @@ class ObjectiveConfig(_Section):
                                   description="weight of novelty in 'mix' (ranks of both, scaled to [0, 1])")
     behaviour: Literal["outcomes", "end_positions"] = Field(
         "outcomes", description="behaviour descriptor: per-trial outcome codes (Hamming distance) or end "
-                                "positions (Euclidean), ../shared/REFERENCES.md section 6")
+                                "positions (Euclidean), Lehman & Stanley 2011, Evolutionary Computation 19(2)")
     k: StrictInt = Field(15, ge=1, description="nearest neighbours in sparseness (Lehman & Stanley: about 15)")
     archive_threshold: float = Field(3.0, gt=0.0, description="initial archive threshold (adapts)")
 
@@ -83,14 +83,14 @@ class MutationConfig(_Section):
     weight_sigma: float = Field(0.5, gt=0.0, description="standard deviation of a weight perturbation")
     weight_replace: float = Field(0.05, ge=0.0, le=1.0, description="a perturbed weight is redrawn instead")
     weight_range: float = Field(10.0, gt=0.0, description="weights and biases stay within +-this "
-                                                          "(REFERENCES.md section 2: [-10, 10], low confidence)")
+                                                          "(Soltoggio et al. 2008, ALife XI: [-10, 10], low confidence)")
     bias: float = Field(0.3, ge=0.0, le=1.0, description="perturb each neuron bias with this probability")
     bias_sigma: float = Field(0.3, gt=0.0, description="standard deviation of a bias perturbation")
     rule: float = Field(0.3, ge=0.0, le=1.0, description="perturb one rule parameter (eta, A, B, C or D)")
     rule_sigma: float = Field(0.2, gt=0.0, description="standard deviation for A..D")
     eta_sigma: float = Field(1.0, gt=0.0, description="standard deviation for eta")
-    eta_range: float = Field(100.0, gt=0.0, description="eta within +-this (REFERENCES.md section 2: [-100, 100])")
-    rule_range: float = Field(1.0, gt=0.0, description="A..D within +-this (REFERENCES.md section 2: [-1, 1])")
+    eta_range: float = Field(100.0, gt=0.0, description="eta within +-this (Soltoggio et al. 2008, ALife XI: [-100, 100])")
+    rule_range: float = Field(1.0, gt=0.0, description="A..D within +-this (Soltoggio et al. 2008, ALife XI: [-1, 1])")
     initial_weight_sigma: float = Field(1.0, gt=0.0, description="standard deviation of the starting weights")
 
     def rates(self) -> MutationRates:

@@ -10,8 +10,8 @@ crossover can line genes up by marking instead of by topology. The
 
 Nodes: inputs (one per observation channel, the world's ``bias`` channel excepted), one
 bias node, two outputs (left and right wheel), then hidden nodes added by mutation;
-hidden nodes are *standard* or *modulatory* (Soltoggio et al. 2008, ../shared/REFERENCES.md
-section 2). Each genome carries one plasticity rule (eta, A, B, C, D) for all its plastic
+hidden nodes are *standard* or *modulatory* (Soltoggio et al. 2008, ALife XI). Each genome
+carries one plasticity rule (eta, A, B, C, D) for all its plastic
 connections, as in the published single-rule setting [memory, medium confidence].
 
 Treatments restrict what may evolve: ``modulated`` (plastic connections and modulatory

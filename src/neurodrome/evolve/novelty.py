@@ -10,11 +10,11 @@ Two behaviour descriptors come out of an evaluation:
 
 - outcome codes (N, T) int: per trial, the index of the reward site reached, or -1 for a
   crash or no site; compared with the Hamming distance (number of trials that differ).
-  For junction mazes this is the per-trial outcome sequence [REFERENCES.md section 6,
+  For junction mazes this is the per-trial outcome sequence [Lehman & Stanley 2011, Evolutionary Computation 19(2),
   memory, medium confidence].
 - end positions (N, T, 2) float: where the robot was at the end of each trial; compared
   with the Euclidean distance between the flattened (T * 2) vectors, which for T = 1 is
-  the final-position distance of open mazes [REFERENCES.md section 6, memory].
+  the final-position distance of open mazes [Lehman & Stanley 2011, Evolutionary Computation 19(2), memory].
 """
 
 from __future__ import annotations

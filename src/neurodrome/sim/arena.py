@@ -32,6 +32,7 @@ from numba import njit
 
 from ..world.geometry import Geometry
 from ..world.spec import WorldSpec
+from .sensors import WallGrid
 
 #: Tiles per side of the grid; a Space holds at most GRID**2 agents.
 GRID = 64
@@ -117,7 +118,9 @@ class Arena:
         self._touch = np.zeros((n, MAX_TOUCHING), dtype=np.int64)  # walls each robot touches
         self._n_touch = np.zeros(n, dtype=np.int64)
         self._walls = np.ascontiguousarray(walls, dtype=np.float64).reshape(-1, 4)
-        self._contact_grid = ContactGrid(self._walls, self.radius)
+        # each cell lists every wall within one radius (and a margin) of it
+        self._contact_grid = WallGrid(self._walls, self.radius, cell=max(4.0 * self.radius, 0.05),
+                                      grow=self.radius + 1e-6)
 
         self._buf = pb.Buffer()
         self.live = np.ones(n, dtype=bool)
@@ -341,37 +344,6 @@ def _drive_kernel(state, live, rows, wheels, max_speed, wheel_base, dt, mass, mo
 #: Most walls one robot can touch at once that the contact kernel tracks; a robot touching
 #: more (only in mazes of tiny segments) counts every extra wall as a new contact.
 MAX_TOUCHING = 32
-
-
-class ContactGrid:
-    """Walls bucketed for contact tests: each cell of a uniform grid (world-file
-    coordinates) lists every wall within ``radius`` (plus a small margin) of the cell, so
-    the walls a robot centred in the cell can touch are all listed there. Stored flat:
-    cell c's walls are ``cell_walls[cell_start[c]:cell_start[c + 1]]``."""
-
-    def __init__(self, walls: np.ndarray, radius: float) -> None:
-        import shapely
-        from shapely.geometry import LineString, box
-
-        walls = np.asarray(walls, dtype=np.float64).reshape(-1, 4)
-        margin = radius + 1e-6
-        xs, ys = np.r_[walls[:, 0], walls[:, 2]], np.r_[walls[:, 1], walls[:, 3]]
-        self.x0, self.y0 = float(xs.min() - margin), float(ys.min() - margin)
-        width, height = float(xs.max() + margin) - self.x0, float(ys.max() + margin) - self.y0
-        cell = max(4.0 * radius, 0.05)
-        while (width / cell) * (height / cell) > 250_000:
-            cell *= 2.0
-        self.cell = cell
-        self.nx, self.ny = max(1, math.ceil(width / cell)), max(1, math.ceil(height / cell))
-        tree = shapely.STRtree([LineString([(w[0], w[1]), (w[2], w[3])]) for w in walls])
-        jj, ii = np.meshgrid(np.arange(self.ny), np.arange(self.nx), indexing="ij")
-        x, y = self.x0 + ii.ravel() * cell, self.y0 + jj.ravel() * cell
-        cells = shapely.buffer(shapely.box(x, y, x + cell, y + cell), margin, join_style="mitre")
-        cell_idx, wall_idx = tree.query(cells, predicate="intersects")
-        order = np.lexsort((wall_idx, cell_idx))
-        self.cell_walls = np.ascontiguousarray(wall_idx[order], dtype=np.int64)
-        counts = np.bincount(cell_idx, minlength=self.nx * self.ny)
-        self.cell_start = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
 
 
 @njit(cache=True, nogil=True)

@@ -38,7 +38,7 @@ from ..world.geometry import Geometry, build_geometry
 from ..world.spec import WorldSpec
 from .arena import MAX_AGENTS, Arena
 from .seeding import CONTROLLER_STREAM, agent_generator, agent_key, normals
-from .sensors import WallGrid, Zones, cast_one, ray_directions
+from .sensors import WallGrid, Zones, cast_one_inline, ray_directions
 from .task import CRASHED, NO_SITE, AgentResult, Phase, RelocationRecord, TrialRecord, draw_schedule
 
 _SENSOR_SALT = 1
@@ -181,7 +181,7 @@ class Batch:
     def reset(self) -> None:
         """Start the evaluation over: lifetime reset of every controller, trial 1 for all."""
         self.arena.revive()
-        n, s = self.n, len(self.site_names)
+        n = self.n
         ids = self.agent_ids.tolist()
         self._rngs = [agent_generator(self.seed, a) for a in ids]
         self._noise_keys = np.array([agent_key(self.seed, a) for a in ids], dtype=np.uint64)
@@ -379,7 +379,6 @@ class Batch:
 
     def _score(self, active: np.ndarray) -> bool:
         """Advance the trial machines; True when something happened that may finish an agent."""
-        scoring = self.spec.task.scoring
         arena = self.arena
         flags = self._flags
         records = self._records
@@ -527,7 +526,7 @@ def _observe_kernel(state, origins, live, ray_angles, reach, radius, max_range, 
         py = state[k, 1] - origins[k, 1]
         heading = state[k, 2]
         for j in range(n_rays):
-            d = cast_one(px, py, heading + ray_angles[j], reach, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls,
+            d = cast_one_inline(px, py, heading + ray_angles[j], reach, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls,
                          start, edge)
             dist[k, j] = d
             if np.isfinite(d):

@@ -13,7 +13,6 @@ compiled kernel (numba), :func:`cast_one`, which other compiled kernels may call
 
 from __future__ import annotations
 
-from functools import cached_property
 
 import numpy as np
 import shapely
@@ -40,7 +39,8 @@ class WallGrid:
     Cell (i, j), 0 <= i < nx, 0 <= j < ny, is the box [x0 + i cell, x0 + (i + 1) cell] x
     [y0 + j cell, y0 + (j + 1) cell] and has index c = j nx + i; its walls are
     ``cell_walls[cell_start[c]:cell_start[c + 1]]`` (ascending wall indices), every wall
-    that touches the box grown by ``CELL_TOLERANCE``. ``start`` (W, 2) and ``edge`` (W, 2)
+    that touches the box grown by ``grow`` (default ``CELL_TOLERANCE``; the contact test
+    grows it by the robot radius, so a cell lists every wall a robot centred in it can touch). ``start`` (W, 2) and ``edge`` (W, 2)
     are each wall's first end point and its vector to the second.
 
     The cell side is ``cell`` when given, otherwise ``CELL_PER_WALL_LENGTH`` times the
@@ -49,19 +49,16 @@ class WallGrid:
     shapes the grid otherwise; it is kept for callers.
     """
 
-    def __init__(self, walls: np.ndarray, reach: float, cell: float | None = None) -> None:
+    def __init__(self, walls: np.ndarray, reach: float, cell: float | None = None, grow: float = CELL_TOLERANCE) -> None:
         walls = np.ascontiguousarray(np.asarray(walls, dtype=np.float64).reshape(-1, 4))
         self.reach = float(reach)
+        self.grow = float(grow)
         self.walls = walls
-        # One extra row, index W, is a sentinel wall with a zero edge that never reports a
-        # hit (it pads ``candidates``); kernel_args passes the first W rows only.
-        self.start = np.zeros((len(walls) + 1, 2))
-        self.edge = np.zeros((len(walls) + 1, 2))
-        self.start[:-1] = walls[:, 0:2]
-        self.edge[:-1] = walls[:, 2:4] - walls[:, 0:2]
+        self.start = np.ascontiguousarray(walls[:, 0:2])
+        self.edge = np.ascontiguousarray(walls[:, 2:4] - walls[:, 0:2])
         # A wall with a zero edge never reports a hit (its denominator is 0 for every ray),
         # so it is left out of the cells.
-        live = np.flatnonzero((self.edge[:-1, 0] != 0.0) | (self.edge[:-1, 1] != 0.0))
+        live = np.flatnonzero((self.edge[:, 0] != 0.0) | (self.edge[:, 1] != 0.0))
         if len(live):
             xs = np.concatenate([walls[live, 0], walls[live, 2]])
             ys = np.concatenate([walls[live, 1], walls[live, 3]])
@@ -97,7 +94,8 @@ class WallGrid:
         # The same expressions as the cell walk in cast_one, so both see the same boxes.
         xa, xb = self.x0 + i * self.cell, self.x0 + (i + 1) * self.cell
         ya, yb = self.y0 + j * self.cell, self.y0 + (j + 1) * self.cell
-        boxes = shapely.box(xa - CELL_TOLERANCE, ya - CELL_TOLERANCE, xb + CELL_TOLERANCE, yb + CELL_TOLERANCE)
+        g = self.grow
+        boxes = shapely.box(xa - g, ya - g, xb + g, yb + g)
         w = self.walls[live]
         lines = shapely.linestrings(np.stack([w[:, 0:2], w[:, 2:4]], axis=1))
         cells, found = shapely.STRtree(lines).query(boxes, predicate="intersects")
@@ -113,29 +111,8 @@ class WallGrid:
     def kernel_args(self) -> tuple:
         """``(gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge)``: the grid as
         :func:`cast_one` takes it (floats, ints, contiguous intp and float64 arrays)."""
-        w = len(self.walls)
-        return (self.x0, self.y0, self.cell, self.nx, self.ny, self.cell_start, self.cell_walls, self.start[:w], self.edge[:w])
+        return (self.x0, self.y0, self.cell, self.nx, self.ny, self.cell_start, self.cell_walls, self.start, self.edge)
 
-    @cached_property
-    def candidates(self) -> np.ndarray:
-        """TRANSITIONAL, for ``sim/_cast_shim.py`` only (remove with it): the previous
-        layout, (cells, K) indices of every wall within ``reach`` of each cell of this grid,
-        padded with the sentinel wall W. Built on first use."""
-        n_cells = self.nx * self.ny
-        i = np.tile(np.arange(self.nx), self.ny)
-        j = np.repeat(np.arange(self.ny), self.nx)
-        xa, ya = self.x0 + i * self.cell, self.y0 + j * self.cell
-        areas = shapely.buffer(shapely.box(xa, ya, xa + self.cell, ya + self.cell), self.reach, join_style="mitre")
-        lines = shapely.linestrings(np.stack([self.walls[:, 0:2], self.walls[:, 2:4]], axis=1))
-        cells, found = shapely.STRtree(lines).query(areas, predicate="intersects") if len(lines) else (np.zeros(0, np.intp),) * 2
-        counts = np.bincount(cells, minlength=n_cells)
-        out = np.full((n_cells, max(1, int(counts.max(initial=0)))), len(self.walls), dtype=np.intp)
-        order = np.lexsort((found, cells))
-        cells, found = cells[order], found[order]
-        first = np.zeros(n_cells + 1, dtype=np.intp)
-        np.cumsum(counts, out=first[1:])
-        out[cells, np.arange(len(cells)) - first[cells]] = found
-        return out
 
     def cells_of(self, points: np.ndarray) -> np.ndarray:
         """(N,) cell index of each point (N, 2), clamped to the grid."""
@@ -282,7 +259,7 @@ def cast_one(px, py, theta, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_
 
 # The same function inlined into the batch loop: a call per ray would pass each array as
 # several machine words and cost about as much as the walk itself.
-_cast_one_inline = njit(nogil=True, inline="always")(cast_one.py_func)
+cast_one_inline = njit(nogil=True, inline="always")(cast_one.py_func)
 
 
 @njit(cache=True, nogil=True)
@@ -292,7 +269,7 @@ def _cast_all(origins, headings, ray_angles, length, gx0, gy0, gcell, gnx, gny, 
         py = origins[i, 1]
         for j in range(ray_angles.shape[0]):
             theta = headings[i] + ray_angles[j]
-            out[i, j] = _cast_one_inline(px, py, theta, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge)
+            out[i, j] = cast_one_inline(px, py, theta, length, gx0, gy0, gcell, gnx, gny, cell_start, cell_walls, start, edge)
 
 
 def proximity(distance_from_centre: np.ndarray, body_radius: float, max_range: float) -> np.ndarray:

@@ -7,12 +7,15 @@ store rooms; which store holds the stock is swapped at the restock (a relocation
 
 from __future__ import annotations
 
+import inspect
 import math
 from typing import Any
 
+import numpy as np
+
 from .spec import SCHEMA_FILE, WORLD_FORMAT, WORLD_VERSION
 
-KINDS = ("junction", "double-junction", "arms", "loading-bay")
+KINDS = ("junction", "double-junction", "arms", "loading-bay", "spiral")
 
 
 def _relocations(names: list[str], relocate: str, trials: int, count: int = 1) -> list[dict[str, Any]]:
@@ -255,8 +258,59 @@ def loading_bay(
     return data
 
 
-def make(kind: str, **options: Any) -> dict[str, Any]:
-    builders = {"junction": junction, "double-junction": double_junction, "arms": arms, "loading-bay": loading_bay}
+def spiral(
+    *,
+    width: float = 0.5,
+    points: int = 500,
+    turns: float = 4.0,
+    trials: int = 100,
+    relocate: str = "none",
+    relocations: int = 1,
+    high: float = 1.0,
+    low: float = 0.2,
+    name: str = "clinic-spiral-corridor",
+) -> dict[str, Any]:
+    """One long winding corridor: an Archimedean spiral (radius 0.8 m growing by 1 m a
+    turn) sampled at ``points`` points, so the maze has about twice as many walls; a store
+    room halfway along and one at the far end. A test of curved, many-wall geometry."""
+    th = np.linspace(0.0, 2 * math.pi * turns, points)
+    r = 0.8 + th / (2 * math.pi)
+    path = [[round(float(x), 6), round(float(y), 6)] for x, y in zip(r * np.cos(th), r * np.sin(th))]
+    length = float(np.sum(np.hypot(np.diff(r * np.cos(th)), np.diff(r * np.sin(th)))))
+    data = _base(
+        name,
+        "Courier rover: a long winding service corridor from the dispatch bay, with the middle "
+        "store room halfway along and the far store room at its end.",
+        width,
+        trials,
+        time_limit=round(4 * length / 0.5 + 10, 1),
+    )
+    data["corridors"] = [{"name": "spiral", "path": path, "width": width}]
+    site_r = round(width * 0.45, 4)
+    heading = math.degrees(math.atan2(path[1][1] - path[0][1], path[1][0] - path[0][0]))
+    data["home"] = {"position": path[0], "heading_deg": round(heading, 3), "radius": site_r}
+    data["sites"] = [
+        {"name": "middle-store", "position": path[points // 2], "radius": site_r},
+        {"name": "far-store", "position": path[-1], "radius": site_r},
+    ]
+    data["markers"] = [{"name": "junction", "position": path[points // 4], "radius": round(width * 0.6, 4)}]
+    data["task"]["site_values"] = {"middle-store": low, "far-store": high}
+    data["task"]["relocations"] = _relocations(["middle-store", "far-store"], relocate, trials, relocations)
+    return data
+
+
+def _builder(kind: str) -> Any:
+    builders = {"junction": junction, "double-junction": double_junction, "arms": arms, "loading-bay": loading_bay,
+                "spiral": spiral}
     if kind not in builders:
         raise ValueError(f"unknown template '{kind}'; choose one of {', '.join(KINDS)}")
-    return builders[kind](**{k: v for k, v in options.items() if v is not None})
+    return builders[kind]
+
+
+def options(kind: str) -> set[str]:
+    """The keyword options template ``kind`` takes."""
+    return set(inspect.signature(_builder(kind)).parameters)
+
+
+def make(kind: str, **options: Any) -> dict[str, Any]:
+    return _builder(kind)(**{k: v for k, v in options.items() if v is not None})
