@@ -111,6 +111,10 @@ def _add_evolve(sub: argparse._SubParsersAction) -> None:
     parser.add_argument("--side-by-side", type=int, default=0, metavar="K",
                         help="runs that evolve at once on the shared workers (default 0: all of them; "
                              "1: one after another); without --workers or --scheduler runs go one at a time")
+    parser.add_argument("--spread", choices=("generations", "runs"), default="generations",
+                        help="what the local workers take: chunks of every run's generations (default), or whole "
+                             "runs, each evolved in one worker process (best when there are at least as many "
+                             "runs as workers)")
     parser.add_argument("--resume", action="store_true",
                         help="continue every unfinished run in RUN_DIR from its checkpoint")
     parser.add_argument("--quiet", action="store_true", help="no progress display")
@@ -144,7 +148,7 @@ def _evolve_study(args: argparse.Namespace) -> int:
     config = with_overrides(load_config(args.config), generations=args.generations, population=args.population,
                             seed=args.seed, runs=args.runs, treatments=args.treatments)
     study = Study(args.world, config, args.output, workers=args.workers, scheduler=args.scheduler,
-                  resume=args.resume, side_by_side=args.side_by_side)
+                  resume=args.resume, side_by_side=args.side_by_side, spread=args.spread)
     study.prepare()
     total = len(study.runs)
     width = max(len(f"{r.treatment}-{r.seed}") for r in study.runs)
@@ -181,8 +185,98 @@ def _evolve_study(args: argparse.Namespace) -> int:
     return 0
 
 
+def _add_study(sub: argparse._SubParsersAction) -> None:
+    parser = sub.add_parser(
+        "study",
+        help="run a study file: named arms over repeated runs, optionally with a curriculum",
+        description=(
+            "Run every arm of a study file (format neurodrome-study: a world, runs per arm, a budget, shared "
+            "evolver settings, named arms each a network kind plus the settings it overrides, stages for a "
+            "curriculum, a goal) into STUDY_DIR/<arm>-<seed>/. Whole runs are spread over the local worker "
+            "processes (each run evolves in one process, so nothing waits on another run's generation); with "
+            "--scheduler the runs step side by side on the Dask cluster. --resume continues every unfinished "
+            "run; `neurodrome report STUDY_DIR` compares the arms, also while the study runs."
+        ),
+    )
+    parser.add_argument("study", metavar="STUDY_FILE", nargs="?", default=None,
+                        help="study file (JSON); with --resume, the copy in STUDY_DIR is used when omitted")
+    parser.add_argument("-o", "--output", required=True, metavar="STUDY_DIR", help="directory of the study's runs")
+    parser.add_argument("--workers", type=int, default=0, metavar="K",
+                        help="local worker processes (default 0: all cores; 1: one run after another here)")
+    parser.add_argument("--scheduler", default=None, metavar="ADDR", help="evaluate on a Dask cluster (tcp://host:8786)")
+    parser.add_argument("--resume", action="store_true", help="continue every unfinished run of STUDY_DIR")
+    parser.add_argument("--quiet", action="store_true", help="no progress display")
+    parser.add_argument("--json", action="store_true", help="print a JSON summary of the runs")
+    parser.set_defaults(func=_run_study)
+
+
+def _run_study(args: argparse.Namespace) -> int:
+    import signal
+
+    def stop(_signum: int, _frame: object) -> None:
+        raise KeyboardInterrupt
+
+    previous = signal.signal(signal.SIGTERM, stop)
+    try:
+        return _study(args)
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+def _study(args: argparse.Namespace) -> int:
+    import sys
+    import time
+    from pathlib import Path
+
+    from ..errors import ConfigError, Problem
+    from ..evolve.study import GenerationDone, Study
+    from ..evolve.studyfile import STUDY_COPY, load_study, prepare_study_dir
+
+    out = Path(args.output)
+    if args.study is None:
+        if not args.resume:
+            raise ConfigError(Problem("STUDY_FILE", "a study file (or --resume with a STUDY_DIR that holds one)",
+                                      "none given"))
+        if not (out / STUDY_COPY).is_file():
+            raise ConfigError(Problem(str(out), f"a study directory with {STUDY_COPY} to resume", "no study there"))
+    study = prepare_study_dir(load_study(args.study) if args.study else None, out, resume=args.resume)
+    runner = Study.from_file(study, out, workers=args.workers, scheduler=args.scheduler, resume=args.resume)
+    runner.prepare()
+    total = len(runner.runs)
+    width = max(len(r.name) for r in runner.runs)
+    started = time.perf_counter()
+
+    def say(text: str) -> None:
+        print(text, file=sys.stderr, flush=True)
+
+    def progress(ev: GenerationDone) -> None:
+        say(f"{ev.name:<{width}}  generation {ev.generation:>4}  best {ev.best:<9.4g} median {ev.median:<9.4g} "
+            f"best so far {ev.best_so_far:<9.4g} | runs done {ev.runs_done}/{ev.runs}  "
+            f"[{time.perf_counter() - started:.0f} s]")
+
+    if not args.quiet:
+        where = (f"on the Dask cluster at {args.scheduler}" if args.scheduler
+                 else f"{'whole runs on ' if runner.spread == 'runs' else ''}{runner.workers or 'all'} local workers"
+                 if args.workers != 1 else "one after another in this process")
+        resumed = f", {runner.runs_done} already finished" if args.resume and runner.runs_done else ""
+        arms = ", ".join(a.name for a in study.spec.arms)
+        say(f"study {study.name}: {len(study.spec.arms)} arms ({arms}) x {study.spec.runs} runs = {total} runs, "
+            f"{where}{resumed}; generations count from 0")
+
+    summaries = runner.run(None if args.quiet else progress)
+    if args.json:
+        print(json.dumps([{"run_dir": str(s.run_dir), "treatment": s.treatment, "seed": s.seed,
+                           "generations": s.generations, "best_so_far": s.best_so_far,
+                           "champion_generation": s.champion_generation, "seconds": s.seconds}
+                          for s in summaries], indent=2))
+        return 0
+    print(f"{total} runs in {out}, {time.perf_counter() - started:.0f} s; compare the arms with "
+          f"`neurodrome report {out} -o {out / 'report'}`")
+    return 0
+
+
 #: The commands of this area.
-COMMANDS: tuple[Callable[[argparse._SubParsersAction], None], ...] = (_add_evolve, _add_report)
+COMMANDS: tuple[Callable[[argparse._SubParsersAction], None], ...] = (_add_evolve, _add_study, _add_report)
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:

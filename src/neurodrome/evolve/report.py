@@ -81,6 +81,12 @@ class Report:
     comparisons: list[Comparison]
     checkpoints: list[int]
     files: dict[str, Path] = field(default_factory=dict)
+    #: a study cut short: the generations its runs were planned to reach (else None)
+    planned: int | None = None
+    #: the study's goal, when the report was made on a study directory that sets one:
+    #: {group: [(run directory, reached, detail), ...]}
+    goals: dict[str, list[tuple[Path, bool, str]]] | None = None
+    goal_kind: str | None = None
 
 
 def _import_matplotlib():
@@ -94,11 +100,18 @@ def _import_matplotlib():
 
 
 def load_runs(run_dirs: Iterable[str | Path]) -> dict[str, list[Run]]:
-    """Read runs and group them by treatment (in order of first appearance).
+    """Read runs and group them by study arm or treatment (in order of first appearance).
 
-    Refuses no runs, the same directory twice, a repeated seed within a treatment, and runs
-    of different lengths, each with a :class:`RunFileError`.
+    Refuses no runs, the same directory twice, a repeated seed within a group, runs on
+    different worlds, and runs of different lengths, each with a :class:`RunFileError`,
+    except that the runs of one study (``neurodrome study``, still running or stopped) are
+    cut to the generations every one of them has reached.
     """
+    return _load_runs(run_dirs)[0]
+
+
+def _load_runs(run_dirs: Iterable[str | Path]) -> tuple[dict[str, list[Run]], int | None]:
+    """(groups, planned generations of a study cut short or None)."""
     paths = find_run_dirs(list(run_dirs))
     if not paths:
         raise RunFileError(Problem("report", "at least one run directory", "none"))
@@ -109,15 +122,39 @@ def load_runs(run_dirs: Iterable[str | Path]) -> dict[str, list[Run]]:
             raise RunFileError(Problem(str(path), "each run directory once", f"also given as {seen[key]}"))
         seen[key] = path
     groups: dict[str, list[Run]] = {}
-    for path in paths:
-        run = read_run(path)
-        group = groups.setdefault(run.treatment, [])
+    runs = [read_run(path, allow_empty=True) for path in paths]
+    studies = {run.study for run in runs}
+    one_study = len(studies) == 1 and None not in studies
+    for run in runs:
+        if run.generations == 0 and not one_study:
+            read_run(run.path)  # raises the empty-log error
+        group = groups.setdefault(run.group, [])
         for other in group:
             if other.header.seed == run.header.seed:
-                raise RunFileError(Problem(f"{path}/run.json $.seed",
-                                           f"a seed not used by another run of treatment {run.treatment!r}",
+                raise RunFileError(Problem(f"{run.path}/run.json $.seed",
+                                           f"a seed not used by another run of {run.group!r}",
                                            f"seed {run.header.seed}, as in {other.path}"))
         group.append(run)
+    worlds: dict[str, list[Path]] = {}
+    for run in runs:
+        worlds.setdefault(run.world_key, []).append(run.path)
+    if len(worlds) > 1:
+        parts = [f"{key} ({len(paths_of)} runs, e.g. {paths_of[0]})" for key, paths_of in worlds.items()]
+        raise RunFileError(Problem("report", "runs evolved on one world (a comparison across worlds compares "
+                                   "tasks, not treatments)", "; ".join(parts)))
+    planned = None
+    if one_study:
+        reached = min(run.generations for run in runs)
+        longest = max(run.generations for run in runs)
+        planned = max(int(run.header.config.get("generations", longest)) for run in runs)
+        if reached == 0:
+            slow = next(run.path for run in runs if run.generations == 0)
+            raise RunFileError(Problem("report", "a study in which every run has finished a generation",
+                                       f"{slow} has none yet"))
+        if reached < planned:
+            groups = {name: [run.head(reached) for run in group] for name, group in groups.items()}
+            return groups, planned
+        return groups, None
     by_length: dict[int, list[Path]] = {}
     for group in groups.values():
         for run in group:
@@ -129,7 +166,7 @@ def load_runs(run_dirs: Iterable[str | Path]) -> dict[str, list[Run]]:
             names = ", ".join(str(p) for p in paths_of[:5]) + (f" and {len(paths_of) - 5} more" if len(paths_of) > 5 else "")
             parts.append(f"{length} generations in {names}")
         raise RunFileError(Problem("report", "runs with the same number of generations", "; ".join(parts)))
-    return groups
+    return groups, None
 
 
 def _checkpoints(checkpoints: Iterable[int] | None, generations: int) -> list[int]:
@@ -156,7 +193,9 @@ def make_report(run_dirs: Iterable[str | Path], out_dir: str | Path,
     treatments are compared besides the final generation.
     """
     matplotlib_parts = _import_matplotlib()
-    groups = load_runs(run_dirs)
+    run_dirs = list(run_dirs)
+    groups, planned = _load_runs(run_dirs)
+    groups = _in_study_order(groups, run_dirs)
     generations = next(iter(groups.values()))[0].generations
     chosen = _checkpoints(checkpoints, generations)
     curves = {name: np.stack([run.best_so_far for run in runs]) for name, runs in groups.items()}
@@ -168,13 +207,45 @@ def make_report(run_dirs: Iterable[str | Path], out_dir: str | Path,
     if out.exists() and not out.is_dir():
         raise RunFileError(Problem(str(out), "a report directory", "an existing file"))
     report = Report(out_dir=out, generations=generations, treatments=groups, finals=finals,
-                    comparisons=comparisons, checkpoints=chosen)
+                    comparisons=comparisons, checkpoints=chosen, planned=planned)
+    _check_goals(report, run_dirs)
     report.files["plot"] = _write(out / PLOT_NAME, _plot_png(matplotlib_parts, curves, chosen))
     report.files["final_values"] = _write(out / FINAL_CSV, _final_csv(finals))
-    report.files["runs"] = _write(out / RUNS_CSV, _runs_csv(groups))
+    report.files["runs"] = _write(out / RUNS_CSV, _runs_csv(groups, report.goals))
     report.files["comparisons"] = _write(out / COMPARISONS_CSV, _comparisons_csv(comparisons))
     report.files["summary"] = _write(out / SUMMARY_NAME, _summary_md(report))
     return report
+
+
+def _in_study_order(groups: dict[str, list[Run]], run_dirs: list[str | Path]) -> dict[str, list[Run]]:
+    """The arms of a study directory in the order of its study file."""
+    from .studyfile import STUDY_COPY, prepare_study_dir
+
+    folders = [Path(p) for p in run_dirs if (Path(p) / STUDY_COPY).is_file()]
+    if len(folders) != 1:
+        return groups
+    order = [arm.name for arm in prepare_study_dir(None, folders[0], resume=True).spec.arms]
+    return dict(sorted(groups.items(), key=lambda item: order.index(item[0]) if item[0] in order else len(order)))
+
+
+def _check_goals(report: Report, run_dirs: list[str | Path]) -> None:
+    """With a study directory among ``run_dirs`` whose study sets a goal, check every run."""
+    from .goals import check_goal
+    from .studyfile import STUDY_COPY, prepare_study_dir
+
+    folders = [Path(p) for p in run_dirs if (Path(p) / STUDY_COPY).is_file()]
+    if len(folders) != 1:
+        return
+    study = prepare_study_dir(None, folders[0], resume=True)
+    goal = study.spec.goal
+    if goal is None:
+        return
+    runs = [run for group in report.treatments.values() for run in group]
+    results = check_goal(goal, study.source.parent, [run.path for run in runs], [run.header.world for run in runs])
+    found = {run.path: r for run, r in zip(runs, results)}
+    report.goal_kind = goal.kind
+    report.goals = {name: [(run.path, found[run.path].reached, found[run.path].detail) for run in group]
+                    for name, group in report.treatments.items()}
 
 
 def _write(path: Path, data: bytes | str) -> Path:
@@ -195,10 +266,20 @@ def _final_csv(finals: list[TreatmentFinal]) -> str:
     return _csv(rows)
 
 
-def _runs_csv(groups: dict[str, list[Run]]) -> str:
-    rows: list[list[object]] = [["treatment", "seed", "run_dir", "generations", "final_best_so_far"]]
-    rows += [[run.treatment, run.header.seed, str(run.path), run.generations, repr(float(run.best_so_far[-1]))]
-             for runs in groups.values() for run in runs]
+def _runs_csv(groups: dict[str, list[Run]], goals: dict[str, list[tuple[Path, bool, str]]] | None = None) -> str:
+    """One row per run; ``treatment`` is the group (a study's arm name), ``network`` the
+    network kind, and with a goal ``goal_reached`` and ``goal_measured``."""
+    head: list[object] = ["treatment", "seed", "run_dir", "generations", "final_best_so_far", "network"]
+    reached = {path: (ok, detail) for rows in (goals or {}).values() for path, ok, detail in rows}
+    rows: list[list[object]] = [head + (["goal_reached", "goal_measured"] if goals is not None else [])]
+    for name, runs in groups.items():
+        for run in runs:
+            row: list[object] = [name, run.header.seed, str(run.path), run.generations,
+                                 repr(float(run.best_so_far[-1])), run.treatment]
+            if goals is not None:
+                ok, detail = reached[run.path]
+                row += ["yes" if ok else "no", detail]
+            rows.append(row)
     return _csv(rows)
 
 
@@ -227,6 +308,8 @@ def _summary_md(report: Report) -> str:
         f"{runs_total} runs in {len(report.treatments)} treatment(s), {report.generations} generations each "
         f"(generations 0 to {last}). Written by neurodrome {__version__}.",
         "",
+        *([f"**The study is still running or was stopped:** every run has reached generation {last}, of "
+           f"{report.planned} planned; this page shows generations 0 to {last}.", ""] if report.planned else []),
         f"![Median best-so-far fitness with inter-quartile bands]({PLOT_NAME})",
         "",
         "## Runs",
@@ -251,6 +334,18 @@ def _summary_md(report: Report) -> str:
     for f in report.finals:
         lines.append(f"| {_md_cell(f.treatment)} | {f.runs} | {_num(f.median)} | {_num(f.q1)} | {_num(f.q3)} | "
                      f"{_num(f.minimum)} | {_num(f.maximum)} | {_num(f.mean)} |")
+    if report.goals is not None:
+        what = {"maximum": "the champion scores the task's maximum when re-evaluated",
+                "switching": "reward-driven switching: the champion beats the same-arm plateau on the relocating "
+                             "world and keeps to one arm in the static world"}[report.goal_kind]
+        lines += ["", f"## Runs that reached the goal ({report.goal_kind})", "", f"Goal: {what}.", "",
+                  "| arm | reached | of runs |", "| --- | ---: | ---: |"]
+        for name, rows in report.goals.items():
+            lines.append(f"| {_md_cell(name)} | {sum(r for _, r, _ in rows)} | {len(rows)} |")
+        lines += ["", "| run | reached | measured |", "| --- | --- | --- |"]
+        for rows in report.goals.values():
+            for path, reached, detail in rows:
+                lines.append(f"| {_md_cell(path.name)} | {'yes' if reached else 'no'} | {_md_cell(detail)} |")
     lines += ["", "## Comparisons", ""]
     if not report.comparisons:
         lines.append("Only one treatment: nothing to compare.")

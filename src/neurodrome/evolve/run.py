@@ -111,8 +111,11 @@ class Run:
     """One seeded run of one treatment in one run directory."""
 
     def __init__(self, world_path: str | Path, config: EvolveConfig, run_dir: str | Path, treatment: str,
-                 seed: int, *, world: WorldSpec | None = None) -> None:
+                 seed: int, *, world: WorldSpec | None = None, name: str | None = None,
+                 header_extra: dict[str, Any] | None = None) -> None:
         self.world_path = str(world_path)
+        self.name = name or f"{treatment}-{seed}"  #: the run's name in a study's progress and reports
+        self.header_extra = dict(header_extra or {})  #: more keys for run.json (a study's arm name)
         self.world = world if world is not None else load_world(world_path)
         self.config = config
         self.run_dir = Path(run_dir)
@@ -124,6 +127,15 @@ class Run:
         self.best_so_far = -np.inf
         self.champion: Genome | None = None
         self.champion_generation = -1
+
+    @property
+    def generation(self) -> int:
+        """Generations done (0 before :meth:`start`)."""
+        return self.population.generation if self.population is not None else 0
+
+    @property
+    def done(self) -> bool:
+        return self.population is not None and self.population.generation >= self.config.generations
 
     # -- start or resume ----------------------------------------------------------------
     def start(self, resume: bool) -> None:
@@ -138,7 +150,7 @@ class Run:
         (self.run_dir / LOG_NAME).write_text("", encoding="utf-8")
         write_run_header(self.run_dir, treatment=self.treatment, seed=self.seed, world=self.world_path,
                          config=self.config.model_dump(mode="json"), world_name=self.world.name,
-                         trials=self.trials)
+                         trials=self.trials, **self.header_extra)
         start = load_genome(self.config.start_genome, self.layout) if self.config.start_genome else None
         self.population = Population(self.config, self.layout, self.treatment, self.seed, start)
 
@@ -166,7 +178,7 @@ class Run:
         if self.config.generations != saved.generations:
             write_run_header(self.run_dir, treatment=self.treatment, seed=self.seed, world=self.world_path,
                              config=self.config.model_dump(mode="json"), world_name=self.world.name,
-                             trials=self.trials)
+                             trials=self.trials, **self.header_extra)
 
     # -- one generation -----------------------------------------------------------------
     def step(self, executor: Any = None) -> dict[str, Any]:

@@ -81,6 +81,31 @@ class Run:
         return self.header.treatment
 
     @property
+    def group(self) -> str:
+        """What a report groups by: the study arm's name, else the treatment."""
+        arm = (self.header.model_extra or {}).get("arm")
+        return arm if isinstance(arm, str) and arm else self.header.treatment
+
+    @property
+    def study(self) -> str | None:
+        """The study the run belongs to (``neurodrome study``), or ``None``."""
+        name = (self.header.model_extra or {}).get("study")
+        return name if isinstance(name, str) else None
+
+    @property
+    def world_key(self) -> str:
+        """Which task the run evolved on: its world, or a curriculum's list of stage worlds."""
+        stages = (self.header.model_extra or {}).get("stages")
+        return " -> ".join(map(str, stages)) if isinstance(stages, list) and stages else self.header.world
+
+    def head(self, generations: int) -> Run:
+        """The run's first ``generations`` generations (for a study still running)."""
+        cut = slice(0, generations)
+        return Run(path=self.path, header=self.header, best=self.best[cut], median=self.median[cut],
+                   mean=self.mean[cut], species=self.species[cut], eval_seconds=self.eval_seconds[cut],
+                   best_so_far=self.best_so_far[cut])
+
+    @property
     def generations(self) -> int:
         return int(self.best.size)
 
@@ -98,7 +123,7 @@ def _read_header(path: Path) -> RunHeader:
     return validate(RunHeader, data, source, RunFileError)
 
 
-def _read_log(path: Path) -> list[LogRecord]:
+def _read_log(path: Path, allow_empty: bool = False) -> list[LogRecord]:
     source = str(path)
     try:
         text = path.read_text(encoding="utf-8")
@@ -129,18 +154,23 @@ def _read_log(path: Path) -> list[LogRecord]:
             raise RunFileError(Problem(f"{where} $.best_so_far", f"at least {records[-1].best_so_far} (it never decreases)",
                                        repr(record.best_so_far)), source=source)
         records.append(record)
-    if not records:
+    if not records and not allow_empty:
         raise RunFileError(Problem(source, "at least one generation", "an empty log"), source=source)
     return records
 
 
-def read_run(run_dir: str | Path) -> Run:
-    """Read and validate one run directory; bad content raises :class:`RunFileError`."""
+def read_run(run_dir: str | Path, allow_empty: bool = False) -> Run:
+    """Read and validate one run directory; bad content raises :class:`RunFileError`.
+    ``allow_empty``: a run that has not finished a generation yet has a missing or empty
+    log (a run of a study that is starting) and gives arrays of length 0."""
     path = Path(run_dir)
     if not path.is_dir():
         raise RunFileError(Problem(str(path), "a run directory", "no such directory"), source=str(path))
     header = _read_header(path / HEADER_NAME)
-    records = _read_log(path / LOG_NAME)
+    if allow_empty and not (path / LOG_NAME).is_file():
+        records = []
+    else:
+        records = _read_log(path / LOG_NAME, allow_empty)
 
     def column(name: str) -> np.ndarray:
         return np.array([getattr(r, name) for r in records], dtype=float)

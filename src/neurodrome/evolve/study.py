@@ -99,8 +99,39 @@ class _StudyPool(LocalPool):
         pool.shutdown(wait=True)
 
 
-def _name(run: Run) -> str:
-    return f"{run.treatment}-{run.seed}"
+def _name(run: Any) -> str:
+    return run.name
+
+
+def _picklable(exc: BaseException) -> BaseException:
+    import pickle
+
+    try:
+        pickle.loads(pickle.dumps(exc))
+        return exc
+    except Exception:
+        return RuntimeError(f"{type(exc).__name__}: {exc}")
+
+
+def _whole_runs(tasks: Any, events: Any) -> None:
+    """A worker process of a study that spreads whole runs: take a run, evolve it to its
+    end in this process (evaluation in-process too), report every generation."""
+    while True:
+        item = tasks.get()
+        if item is None:
+            return
+        index, unit = item
+        try:
+            unit.start(True)  # the checkpoint if there is one, else generation 0, as prepared
+            started = time.perf_counter()
+            while not unit.done:
+                rec = unit.step(None)
+                events.put(("generation", index, (rec, unit.done), time.perf_counter() - started))
+            events.put(("finished", index, (unit.generation, unit.best_so_far, unit.champion_generation),
+                        time.perf_counter() - started))
+        except BaseException as exc:
+            events.put(("error", index, _picklable(exc), 0.0))
+            return
 
 
 class Study:
@@ -112,7 +143,49 @@ class Study:
     """
 
     def __init__(self, world_path: str | Path, config: EvolveConfig, out_dir: str | Path, *, workers: int = 1,
-                 scheduler: str | None = None, resume: bool = False, side_by_side: int | None = None) -> None:
+                 scheduler: str | None = None, resume: bool = False, side_by_side: int | None = None,
+                 spread: str = "generations") -> None:
+        world = load_world(world_path)
+        runs = [Run(world_path, config, d, t, s, world=world) for t, s, d in run_dirs(out_dir, config)]
+        self._setup(runs, config, workers=workers, scheduler=scheduler, resume=resume, side_by_side=side_by_side,
+                    spread=spread)
+        self.world_path = str(world_path)
+
+    @classmethod
+    def from_file(cls, study: Any, out_dir: str | Path, *, workers: int = 1, scheduler: str | None = None,
+                  resume: bool = False, side_by_side: int | None = None, spread: str = "runs") -> Study:
+        """The runs of a study file (:class:`~neurodrome.evolve.studyfile.LoadedStudy`):
+        ``OUT_DIR/<arm>-<seed>/`` for run ``r`` of each arm, seed = the study's seed + r
+        (a curriculum arm: its first stage's seed + r)."""
+        from .curriculum import StagedRun
+
+        out = Path(out_dir)
+        spec = study.spec
+        runs: list[Any] = []
+        worlds: dict[str, Any] = {}
+        for arm in spec.arms:
+            extra = {"arm": arm.name, "study": study.name}
+            for r in range(spec.runs):
+                if arm.stages:
+                    plan = study.stages[arm.name]
+                    runs.append(StagedRun(plan, out / f"{arm.name}-{plan[0][1] + r}", arm.network, r,
+                                          budget_generations=spec.budget.generations,
+                                          budget_evaluations=spec.budget.evaluations,
+                                          name=f"{arm.name}-{plan[0][1] + r}", header_extra=extra))
+                    continue
+                config = study.configs[arm.name]
+                world = worlds.setdefault(study.world, load_world(study.world))
+                seed = spec.seed + r
+                runs.append(Run(study.world, config, out / f"{arm.name}-{seed}", arm.network, seed, world=world,
+                                name=f"{arm.name}-{seed}", header_extra=extra))
+        self = cls.__new__(cls)
+        self._setup(runs, None, workers=workers, scheduler=scheduler, resume=resume, side_by_side=side_by_side,
+                    spread=spread)
+        self.world_path = study.world
+        return self
+
+    def _setup(self, runs: list[Any], config: EvolveConfig | None, *, workers: int, scheduler: str | None,
+               resume: bool, side_by_side: int | None, spread: str) -> None:
         if isinstance(workers, bool) or not isinstance(workers, int) or workers < 0:
             raise ConfigError(Problem("--workers", "0 (all cores) or a whole number of worker processes >= 1",
                                       repr(workers)))
@@ -120,13 +193,17 @@ class Study:
                                          or side_by_side < 0):
             raise ConfigError(Problem("--side-by-side", "0 (all runs) or a whole number of runs >= 1",
                                       repr(side_by_side)))
-        self.world_path = str(world_path)
+        if spread not in ("generations", "runs"):
+            raise ConfigError(Problem("--spread", "'generations' or 'runs'", repr(spread)))
         self.config = config
         self.workers = workers
         self.scheduler = scheduler
         self.resume = resume
-        world = load_world(world_path)
-        self.runs = [Run(world_path, config, d, t, s, world=world) for t, s, d in run_dirs(out_dir, config)]
+        self.runs = runs
+        #: what the local workers take: chunks of every run's generations, or whole runs
+        #: (each evolved in one worker process; with Dask always chunks)
+        self.spread = "runs" if spread == "runs" and scheduler is None and workers != 1 and len(runs) > 1 \
+            else "generations"
         remote = scheduler is not None or workers != 1
         #: how many runs step at once: all by default, one when evaluating in this process
         self.at_once = max(1, min(len(self.runs), side_by_side or len(self.runs))) if remote else 1
@@ -146,8 +223,8 @@ class Study:
             r.start(self.resume)
         self._prepared = True
 
-    def finished(self, run: Run) -> bool:
-        return run.population is not None and run.population.generation >= run.config.generations
+    def finished(self, run: Any) -> bool:
+        return run.done
 
     @property
     def runs_done(self) -> int:
@@ -198,6 +275,8 @@ class Study:
                     runs_done=done[0], runs=len(self.runs)))
 
         todo = [r for r in self.runs if not self.finished(r)]
+        if self.spread == "runs" and todo:
+            return self._whole_runs(todo, report, seconds)
         executor = self._executor() if todo else None
         try:
             if self.at_once == 1:
@@ -214,8 +293,68 @@ class Study:
             raise
         finally:
             self._close(executor)
-        return [RunSummary(r.run_dir, r.treatment, r.seed, r.population.generation, r.best_so_far,
+        return [RunSummary(r.run_dir, r.treatment, r.seed, r.generation, r.best_so_far,
                            r.champion_generation, seconds[id(r)]) for r in self.runs]
+
+    def _whole_runs(self, todo: list[Any], report: Callable[[Any, dict[str, Any]], None],
+                    seconds: dict[int, float]) -> list[RunSummary]:
+        """Spread whole runs over worker processes (see :func:`_whole_runs`)."""
+        import multiprocessing as mp
+
+        from ..executors import default_workers
+
+        ctx = mp.get_context("spawn")
+        tasks, events = ctx.Queue(), ctx.Queue()
+        count = min(len(todo), self.workers or default_workers())
+        for index, unit in enumerate(todo):
+            tasks.put((index, unit))
+        for _ in range(count):
+            tasks.put(None)
+        procs = [ctx.Process(target=_whole_runs, args=(tasks, events), name=f"neurodrome-run-{k}", daemon=True)
+                 for k in range(count)]
+        final: dict[int, tuple[int, float, int]] = {}
+        try:
+            for p in procs:
+                p.start()
+            while len(final) < len(todo):
+                try:
+                    kind, index, payload, elapsed = events.get(timeout=1.0)
+                except queue.Empty:
+                    dead = [p for p in procs if p.exitcode not in (None, 0)]
+                    if dead:
+                        raise ConfigError(Problem("study worker", "worker processes that keep running",
+                                                  f"{dead[0].name} stopped with exit code {dead[0].exitcode} "
+                                                  "(out of memory?); --resume continues from the last "
+                                                  "whole generation of every run"))
+                    continue
+                unit = todo[index]
+                seconds[id(unit)] = elapsed
+                if kind == "error":
+                    raise payload
+                if kind == "finished":
+                    final[index] = payload
+                    continue
+                # the unit in this process is not the one stepping: mirror what a report reads
+                rec, finished = payload
+                report(_Mirror(unit, finished), rec)
+        except BaseException:
+            for p in procs:
+                if p.is_alive():
+                    p.terminate()
+            for p in procs:
+                p.join()
+            raise
+        for p in procs:
+            p.join()
+        out = []
+        for r in self.runs:
+            if r in todo:
+                generation, best, champion = final[todo.index(r)]
+                out.append(RunSummary(r.run_dir, r.treatment, r.seed, generation, best, champion, seconds[id(r)]))
+            else:
+                out.append(RunSummary(r.run_dir, r.treatment, r.seed, r.generation, r.best_so_far,
+                                      r.champion_generation, seconds[id(r)]))
+        return out
 
     def _side_by_side(self, todo: list[Run], executor: Any, report: Callable[[Run, dict[str, Any]], None],
                       seconds: dict[int, float]) -> None:
@@ -264,6 +403,18 @@ class Study:
             for t in threads:
                 t.join()
             raise
+
+
+class _Mirror:
+    """What :meth:`Study.run`'s report reads of a run that steps in another process."""
+
+    def __init__(self, unit: Any, finished: bool) -> None:
+        self.name, self.run_dir, self.treatment, self.seed = unit.name, unit.run_dir, unit.treatment, unit.seed
+        self.config = unit.config
+        self.done = finished
+
+    def __getattr__(self, name: str) -> Any:  # pragma: no cover - only the fields above are read
+        raise AttributeError(name)
 
 
 def evolve(world_path: str | Path, config: EvolveConfig, out_dir: str | Path, *, workers: int = 1,
