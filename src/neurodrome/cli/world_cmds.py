@@ -52,9 +52,12 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--size", default="1200x900", metavar="WxH", help="picture size in pixels (default 1200x900)")
     p.set_defaults(func=cmd_preview)
 
-    p = sub.add_parser("schema", help="print the world file's JSON Schema",
-                       description="Print the JSON Schema of the world file (or write it with -o).")
+    p = sub.add_parser("schema", help="print the JSON Schema of a file format (world, study, evolver, network)",
+                       description="Print the JSON Schema of the world file, or with --of of another file "
+                                   "format (or write it with -o).")
     p.add_argument("-o", "--output", metavar="FILE")
+    p.add_argument("--of", choices=("world", "study", "evolver", "network"), default="world",
+                   help="which format: world (default), study, evolver (the evolve --config file), network")
     p.set_defaults(func=cmd_schema)
 
 
@@ -227,8 +230,24 @@ def cmd_preview(args: argparse.Namespace) -> int:
 
 # -- schema ---------------------------------------------------------------------------
 
+def _schema_of(kind: str) -> dict:
+    if kind == "study":
+        from ..evolve.studyfile import study_json_schema
+
+        return study_json_schema()
+    if kind == "evolver":
+        from ..evolve.config import config_json_schema
+
+        return config_json_schema()
+    if kind == "network":
+        from ..control.spec import network_json_schema
+
+        return network_json_schema()
+    return world_json_schema()
+
+
 def cmd_schema(args: argparse.Namespace) -> int:
-    text = json.dumps(world_json_schema(), indent=2) + "\n"
+    text = json.dumps(_schema_of(getattr(args, "of", "world")), indent=2) + "\n"
     if args.output:
         write_atomic(args.output, text)
         print(f"wrote {args.output}")
